@@ -1,0 +1,28 @@
+# Two entry points for a fresh machine: `make demo` and `make test`.
+# Each builds .venv from nothing with the machine's python3.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test bench clean
+
+$(STAMP): pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e ".[test,dask]"
+	touch $(STAMP)
+
+demo: $(STAMP)
+	mkdir -p demo_output
+	$(BIN)/reachgauge section sample_data/gauged_section.csv --stage 100.9 --slope 0.0021 \
+	    --discharge 6.2 --rating demo_output/gauged_rating.csv --overwrite
+
+test: $(STAMP)
+	$(BIN)/python -m pytest -q
+
+bench: $(STAMP)
+	$(BIN)/python benchmarks/bench_section.py
+
+clean:
+	rm -rf $(VENV) demo_output .pytest_cache .hypothesis
