@@ -1,0 +1,57 @@
+"""The vocabulary of statuses and flags: one place, used by every step, the
+writer and the report.
+
+A transect or reach carries a ``status`` (``ok`` or the first reason it could not
+be computed) and ``flags``: zero or more codes, joined by ``;`` in outputs, for
+results that were computed but deserve a look. Codes are our own.
+"""
+
+from __future__ import annotations
+
+# status codes: the item produced no figures
+REACH_STATUS = {
+    "ok": "processed",
+    "empty-geometry": "the feature has no geometry",
+    "not-a-line": "the feature is not a LineString or MultiLineString",
+    "too-short": "the line is shorter than one transect spacing",
+    "outside-raster": "the line lies outside the terrain raster",
+    "failed": "an unexpected error; see the run log",
+}
+TRANSECT_STATUS = {
+    "ok": "processed",
+    "no-data": "too few valid terrain samples on the transect",
+    "no-depth": "the profile has no ground above the thalweg on one side",
+    "failed": "an unexpected error; see the run log",
+}
+
+# flag codes: computed, but look before trusting
+FLAGS = {
+    # sampling and geometry (transects issue)
+    "partial-nodata": "some samples fell on nodata and were dropped",
+    "off-raster": "part of the transect lies outside the raster",
+    "shortened": "transect shortened to avoid crossing a neighbour or another stream",
+    "crosses-neighbour": "transect crosses a neighbouring transect or another stream",
+    "snap-far": "thalweg found far from the digitised centreline (near the snap limit)",
+    "flat-reach": "slope below the floor; the floor was used",
+    "carved": "thalweg elevation lowered by carving a hump out of the profile",
+    # bankfull (bankfull issue)
+    "methods-disagree": "bankfull methods disagree by more than the tolerance",
+    "no-clear-break": "no clear break in the section's shape: low confidence in bankfull",
+    "spills-first": "the section spills over an end of the profile before a bank break",
+    "flat-thalweg": "flat thalweg: likely the water surface at the flight, not the bed",
+    "bankfull-outlier": "bankfull depth far from the reach median",
+    # capacity and roughness (bankfull issue)
+    "out-of-bank": "a design flow leaves the channel",
+    "over-profile": "a flow cannot be carried inside the profile",
+    "n-unusual": "Manning's n outside the usual range of the published tables",
+}
+
+
+def join(codes) -> str:
+    """Join flag codes (any iterable, duplicates and blanks dropped) as 'a;b'."""
+    seen = []
+    for c in codes:
+        for part in str(c).split(";"):
+            if part and part not in seen:
+                seen.append(part)
+    return ";".join(seen)
