@@ -43,7 +43,20 @@ def main():
             s.geometry(s.thalweg + st)
 
     t = best_of(reach, 3)
-    print(f"reach: 200 transects x 100 stages       {t * 1e3:8.2f} ms")
+    print(f"reach, one at a time: 200 x 100 stages  {t * 1e3:8.2f} ms")
+
+    from reachgauge.profiles import ProfileSet
+
+    z = np.array([s.elevation for s in sections])
+    ps = ProfileSet(xs, z)
+    stages = ps.thalweg[:, None] + st[None, :]
+    t = best_of(lambda: ps.geometry(stages), 3)
+    print(f"reach, ProfileSet: 200 x 100 stages     {t * 1e3:8.2f} ms")
+    t = best_of(lambda: ps.stage_for_discharge(5.0, 0.002, 0.035), 3)
+    print(f"reach, ProfileSet: normal depth x 200   {t * 1e3:8.2f} ms")
+    banks = np.tile([20.0, 40.0], (200, 1))
+    t = best_of(lambda: ps.discharge(stages, 0.002, (0.06, 0.035, 0.06), banks), 3)
+    print(f"reach, divided channel: 200 x 100       {t * 1e3:8.2f} ms")
 
 
 if __name__ == "__main__":
