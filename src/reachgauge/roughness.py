@@ -222,3 +222,64 @@ def warn_all(notes: list[str]) -> None:
 
     for note in notes:
         warnings.warn(note, ReachgaugeWarning, stacklevel=3)
+
+
+# ------------------------------------------------------- n from land cover
+def subsection_n_from_classes(classes, offsets, banks, table: dict[int, float], fallback):
+    """Manning's n of the left overbank, channel and right overbank of every
+    transect from the land-cover classes under it.
+
+    ``classes`` (t, n) integer classes sampled at ``offsets`` (n,) m;
+    ``banks`` (t, 2) bank offsets; ``table`` class → n; ``fallback`` (t,) n
+    used for samples of unknown class and for a part with no samples.
+    Within a part every sample stands for an equal length of ground, so the
+    Horton–Einstein composite (Chow 1959, §6-9, Eq. 6-17) reduces to
+    n = (mean n_i^1.5)^(2/3). Returns ``(n (t, 3), unknown (t,) bool)``.
+    """
+    cls = np.asarray(classes)
+    t = cls.shape[0]
+    fb = np.broadcast_to(np.asarray(fallback, dtype=float), (t,))
+    keys = np.array(sorted(table), dtype=np.int64)
+    vals = np.array([table[k] for k in keys], dtype=float)
+    flat = np.nan_to_num(cls.astype(float), nan=-1).astype(np.int64)
+    pos = np.clip(np.searchsorted(keys, flat), 0, max(len(keys) - 1, 0))
+    known = (keys.size > 0) & (keys[pos] == flat) if keys.size else np.zeros_like(flat, bool)
+    n_at = np.where(known, vals[pos] if keys.size else 0.0, fb[:, None])
+    bk = np.asarray(banks, dtype=float).reshape(t, 2)
+    x = np.asarray(offsets, dtype=float)[None, :]
+    parts = (x < bk[:, :1], (x >= bk[:, :1]) & (x <= bk[:, 1:]), x > bk[:, 1:])
+    out = np.empty((t, 3))
+    for k, m in enumerate(parts):
+        cnt = m.sum(axis=1)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            mean15 = np.where(m, n_at ** 1.5, 0.0).sum(axis=1) / np.where(cnt > 0, cnt, 1)
+        out[:, k] = np.where(cnt > 0, mean15 ** (2.0 / 3.0), fb)
+    unknown = (~known & (cls >= 0 if np.issubdtype(cls.dtype, np.integer) else np.isfinite(cls))
+               ).any(axis=1)
+    return out, unknown
+
+
+def reach_channel_n(reach_id: str, attributes: dict, *, default: float, n_field=None,
+                    cowan_terms: dict | None = None) -> tuple[float, str]:
+    """The channel n of a reach and where it came from.
+
+    Priority: Cowan's method terms for the reach (if given), then the reach's
+    ``n_field`` value, then ``default``. Returns ``(n, source)`` with source
+    ``"cowan"``, ``"field"`` or ``"default"``.
+    """
+    if cowan_terms and reach_id in cowan_terms:
+        t = cowan_terms[reach_id]
+        return cowan_n(t["base"], t["irregularity"], t["variation"], t["obstruction"],
+                       t["vegetation"], t["meander"]), "cowan"
+    if n_field:
+        if n_field not in attributes:
+            raise InputError(f"n-field {n_field!r} is not a field of the streams",
+                             f"fields are: {', '.join(map(str, attributes))}")
+        v = attributes[n_field]
+        try:
+            v = float(v)
+        except (TypeError, ValueError):
+            v = float("nan")
+        if np.isfinite(v) and v > 0:
+            return v, "field"
+    return float(default), "default"

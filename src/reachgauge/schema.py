@@ -1,0 +1,198 @@
+"""The result fields: one schema that the analysis, the writer, the report and the
+README all use.
+
+Each field: (kind, meaning). The kind decides the unit and the conversion to
+US customary units at the output edge: ``length`` (m | ft), ``area`` (m² |
+ft²), ``velocity`` (m/s | ft/s), ``discharge`` (m³/s | ft³/s), ``stress``
+(N/m² | lbf/ft²), ``power`` (W/m² | lbf/(ft·s)), ``n`` (Manning's n: s/m^(1/3)
+in both systems by convention, the unit constant k absorbing the change),
+``none`` (dimensionless), ``text``, ``flag`` (bool), ``count``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from .manning import FOOT
+
+# factor from SI to US customary for each kind
+TO_US = {"length": 1 / FOOT, "area": 1 / FOOT ** 2, "velocity": 1 / FOOT,
+         "discharge": 1 / FOOT ** 3, "stress": 0.020885434, "power": 0.068521766}
+# stress: 1 N/m² = 0.020885434 lbf/ft²; power: 1 W/m² = 0.068521766 lbf/(ft·s)
+# (standard conversion factors: 1 lbf = 4.4482216 N, 1 ft = 0.3048 m)
+
+UNIT_LABELS = {
+    "si": {"length": "m", "area": "m²", "velocity": "m/s", "discharge": "m³/s", "stress": "N/m²",
+           "power": "W/m²", "n": "s/m^(1/3)"},
+    "us": {"length": "ft", "area": "ft²", "velocity": "ft/s", "discharge": "ft³/s",
+           "stress": "lbf/ft²", "power": "lbf/(ft·s)", "n": "s/m^(1/3)"},
+}
+
+TRANSECT_FIELDS = {
+    "reach_id": ("text", "reach identifier"),
+    "station": ("count", "transect number along the reach, 0 at the upstream end"),
+    "chainage": ("length", "distance along the centreline from the reach's upstream end"),
+    "status": ("text", "ok, or why the transect has no figures"),
+    "flags": ("text", "';'-separated codes worth a look (see the flag table)"),
+    "thalweg_z": ("length", "thalweg (lowest ground) elevation"),
+    "thalweg_shift": ("length", "thalweg offset from the digitised centreline, + towards the right bank"),
+    "slope": ("none", "slope used at this station (dimensionless)"),
+    "bankfull_method": ("text", "method that picked the bankfull stage"),
+    "confidence": ("text", "confidence in the bankfull stage: high, medium or low"),
+    "bankfull_stage": ("length", "bankfull water-surface elevation"),
+    "bankfull_depth": ("length", "bankfull stage minus thalweg elevation"),
+    "bank_left": ("length", "offset of the left water edge at bankfull, from the transect's left end"),
+    "bank_right": ("length", "offset of the right water edge at bankfull"),
+    "method_spread": ("length", "range of the bankfull depths given by the automatic methods"),
+    "n_channel": ("n", "Manning's n of the channel"),
+    "n_left": ("n", "Manning's n of the left overbank"),
+    "n_right": ("n", "Manning's n of the right overbank"),
+    "n_source": ("text", "where n came from: default, field, cowan, landcover, calibrated"),
+    "area": ("area", "flow area at bankfull"),
+    "perimeter": ("length", "wetted perimeter at bankfull"),
+    "top_width": ("length", "water-surface width at bankfull"),
+    "hyd_radius": ("length", "hydraulic radius at bankfull, area / wetted perimeter"),
+    "hyd_depth": ("length", "hydraulic depth at bankfull, area / top width"),
+    "width_depth": ("none", "top width / hydraulic depth at bankfull"),
+    "velocity": ("velocity", "mean velocity at bankfull"),
+    "discharge": ("discharge", "Manning discharge at bankfull (divided-channel method)"),
+    "froude": ("none", "Froude number at bankfull"),
+    "shear": ("stress", "mean boundary shear stress at bankfull, gamma R S"),
+    "stream_power": ("power", "unit stream power at bankfull, gamma Q S / top width"),
+    "q_left": ("discharge", "bankfull discharge carried by the left overbank"),
+    "q_channel": ("discharge", "bankfull discharge carried by the channel"),
+    "q_right": ("discharge", "bankfull discharge carried by the right overbank"),
+    "n_observed": ("n", "channel n back-calculated from a measured flow matched to this transect"),
+    "min_freeboard": ("length", "least freeboard to bankfull over the design flows (negative: out of bank)"),
+    "flows_out": ("text", "design flows that leave the channel here"),
+}
+
+REACH_FIELDS = {
+    "reach_id": ("text", "reach identifier"),
+    "name": ("text", "reach name from the streams file"),
+    "status": ("text", "ok, or why the reach has no figures"),
+    "message": ("text", "details of the status"),
+    "orientation": ("text", "how the downstream direction was decided"),
+    "length": ("length", "centreline length"),
+    "transects": ("count", "transects cut"),
+    "transects_ok": ("count", "transects with figures"),
+    "transects_flagged": ("count", "transects with at least one flag"),
+    "slope": ("none", "reach slope (fit over the whole reach)"),
+    "slope_flags": ("text", "flags of the slope estimate"),
+    "bankfull_depth": ("length", "median bankfull depth of the transects"),
+    "depth_spread": ("length", "interquartile range of the transects' bankfull depths"),
+    "top_width": ("length", "median bankfull top width"),
+    "area": ("area", "median bankfull flow area"),
+    "discharge": ("discharge", "median bankfull discharge"),
+    "discharge_p25": ("discharge", "25th percentile of the transects' bankfull discharge"),
+    "discharge_p75": ("discharge", "75th percentile of the transects' bankfull discharge"),
+    "velocity": ("velocity", "median bankfull velocity"),
+    "n_channel": ("n", "Manning's n of the channel used for the reach"),
+    "n_source": ("text", "where the channel n came from"),
+    "n_calibrated": ("n", "median channel n back-calculated from measured flows (if any)"),
+    "confidence_low": ("count", "transects whose bankfull stage has low confidence"),
+    "outliers": ("count", "transects whose bankfull depth is an outlier for the reach"),
+    "flows_out": ("text", "design flows above the reach's median bankfull discharge"),
+    "worst_ratio": ("none", "largest design / bankfull discharge ratio"),
+}
+
+RATING_FIELDS = {
+    "reach_id": ("text", "reach identifier"),
+    "station": ("count", "transect number; -1 for the reach's median curve"),
+    "chainage": ("length", "chainage of the transect (reach median curve: NaN)"),
+    "stage": ("length", "water-surface elevation (reach curve: median thalweg + depth)"),
+    "depth": ("length", "stage minus thalweg elevation"),
+    "area": ("area", "flow area"),
+    "perimeter": ("length", "wetted perimeter"),
+    "top_width": ("length", "water-surface width"),
+    "hyd_radius": ("length", "hydraulic radius"),
+    "velocity": ("velocity", "mean velocity"),
+    "discharge": ("discharge", "Manning discharge"),
+    "spills": ("flag", "the water reaches an end of the transect"),
+}
+
+STAGE_FIELDS = {
+    "reach_id": ("text", "reach identifier"),
+    "station": ("count", "transect number"),
+    "chainage": ("length", "chainage of the transect"),
+    "request": ("text", "the stage asked for: 'depth D' or 'elevation E'"),
+    **{k: RATING_FIELDS[k] for k in ("stage", "depth", "area", "perimeter", "top_width",
+                                      "hyd_radius", "velocity", "discharge", "spills")},
+    "froude": ("none", "Froude number"),
+    "shear": ("stress", "mean boundary shear stress"),
+}
+
+DESIGN_FIELDS = {
+    "reach_id": ("text", "reach identifier"),
+    "station": ("count", "transect number; -1 for the reach summary row"),
+    "chainage": ("length", "chainage of the transect"),
+    "flow": ("text", "name of the design flow"),
+    "discharge": ("discharge", "design discharge"),
+    "stage": ("length", "normal-depth water-surface elevation"),
+    "depth": ("length", "normal depth above the thalweg"),
+    "freeboard": ("length", "bankfull stage minus design stage (negative: out of bank)"),
+    "q_ratio": ("none", "design discharge / bankfull discharge"),
+    "out_of_bank": ("flag", "the flow leaves the channel"),
+    "over_profile": ("flag", "the flow overtops the transect's ends: widen the transect"),
+    "share_out": ("none", "reach row: fraction of transects where the flow is out of bank"),
+}
+
+PROFILE_FIELDS = {
+    "reach_id": ("text", "reach identifier"),
+    "chainage": ("length", "distance from the reach's upstream end"),
+    "z_raw": ("length", "thalweg elevation as sampled"),
+    "z_carved": ("length", "thalweg elevation after carving humps"),
+    "z_used": ("length", "elevation the slope was fitted to"),
+}
+
+CALIBRATION_FIELDS = {
+    "reach_id": ("text", "reach identifier"),
+    "station": ("count", "transect the observation was matched to"),
+    "chainage": ("length", "chainage of that transect"),
+    "stage": ("length", "measured water-surface elevation"),
+    "depth": ("length", "measured depth above the thalweg"),
+    "discharge": ("discharge", "measured discharge"),
+    "n_back": ("n", "channel n that reproduces the measured discharge"),
+    "table_rows": ("text", "Chow (1959) Table 5-6 channel rows whose range holds n_back"),
+}
+
+LAYERS = {
+    "transects": TRANSECT_FIELDS,
+    "reaches": REACH_FIELDS,
+    "rating_curves": RATING_FIELDS,
+    "stage_figures": STAGE_FIELDS,
+    "design_checks": DESIGN_FIELDS,
+    "profile": PROFILE_FIELDS,
+    "calibration": CALIBRATION_FIELDS,
+}
+
+
+def to_units(df: pd.DataFrame, fields: dict, units: str) -> pd.DataFrame:
+    """A copy of ``df`` with every known numeric field converted from SI to ``units``."""
+    if units == "si":
+        return df.copy()
+    out = df.copy()
+    for name, (kind, _m) in fields.items():
+        if name in out.columns and kind in TO_US:
+            out[name] = out[name].astype(float) * TO_US[kind]
+    return out
+
+
+def unit_of(fields: dict, name: str, units: str) -> str:
+    kind = fields[name][0]
+    return UNIT_LABELS[units].get(kind, "")
+
+
+def empty_frame(fields: dict) -> pd.DataFrame:
+    return pd.DataFrame({k: pd.Series(dtype=object if v[0] == "text" else float)
+                         for k, v in fields.items()})
+
+
+def column_order(df: pd.DataFrame, fields: dict) -> pd.DataFrame:
+    cols = [c for c in fields if c in df.columns] + [c for c in df.columns if c not in fields]
+    return df[cols]
+
+
+__all__ = ["LAYERS", "TO_US", "UNIT_LABELS", "to_units", "unit_of", "empty_frame", "column_order",
+           "np"]
