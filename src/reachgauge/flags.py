@@ -16,6 +16,10 @@ REACH_STATUS = {
     "too-short": "the line is shorter than one transect spacing",
     "outside-raster": "the line lies outside the terrain raster",
     "failed": "an unexpected error; see the run log",
+    # appended by the GIS issue
+    "zero-length": "the line has zero length (all its vertices coincide)",
+    "no-sections": "no transect of the reach has enough terrain data",
+    "bad-input": "this reach's own data is unusable (see the message)",
 }
 TRANSECT_STATUS = {
     "ok": "processed",
@@ -44,6 +48,9 @@ FLAGS = {
     "out-of-bank": "a design flow leaves the channel",
     "over-profile": "a flow cannot be carried inside the profile",
     "n-unusual": "Manning's n outside the usual range of the published tables",
+    "n-unknown-class": "a land-cover class under the transect has no n in the table",
+    # appended by the GIS issue
+    "water-surface": "slope fitted to the water surface of hydro-flattened terrain, not to the bed",
 }
 
 
