@@ -46,7 +46,7 @@ FLAGS = {
     "bankfull-outlier": "bankfull depth far from the reach median",
     # capacity and roughness (bankfull issue)
     "out-of-bank": "a design flow leaves the channel",
-    "over-profile": "a flow cannot be carried inside the profile",
+    "over-profile": "a flow overtops an end of the transect (its stage is an upper bound)",
     "n-unusual": "Manning's n outside the usual range of the published tables",
     "n-unknown-class": "a land-cover class under the transect has no n in the table",
     # appended by the GIS issue

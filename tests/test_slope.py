@@ -1,0 +1,139 @@
+"""Profile carving and slope fitting.
+
+References: scipy.stats.theilslopes (reference library) for the Theil–Sen
+estimate (Theil 1950; Sen 1968); closed-form profiles (a straight grade with a
+box-shaped hump, whose breach is the straight grade itself); synthetic terrain
+with an embankment and with hydro-flattened water (tests/terrain_fixtures.py)
+whose true slope is known.
+"""
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy import stats
+
+from reachgauge import slope
+from reachgauge.config import RunConfig
+from reachgauge.cutting import cut_all
+from terrain_fixtures import make_valley_raster, straight_line, write_lines
+
+C = np.arange(0.0, 1000.0, 20.0)
+
+
+def test_carve_removes_a_box_hump_back_to_the_grade():
+    z = 100.0 - 0.002 * C
+    raw = z.copy()
+    raw[(C >= 400) & (C <= 460)] += 3.0          # an embankment 3 m high, 60 m long
+    carved, flag = slope.carve(C, raw)
+    np.testing.assert_allclose(carved, z, atol=1e-12)  # the breach is the grade itself
+    np.testing.assert_array_equal(flag, (C >= 400) & (C <= 460))
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.floats(-50, 50, allow_nan=False), min_size=2, max_size=60))
+def test_carve_is_monotone_never_raises_and_keeps_monotone_profiles(values):
+    z = np.asarray(values)
+    c = np.arange(z.size) * 10.0
+    carved, _ = slope.carve(c, z)
+    assert np.all(np.diff(carved) <= 1e-12)        # monotone non-increasing downstream
+    assert np.all(carved <= z + 1e-12)              # ground is only lowered
+    mono = np.minimum.accumulate(z)
+    np.testing.assert_allclose(slope.carve(c, mono)[0], mono)  # already monotone: unchanged
+
+
+def test_carve_skips_nan_and_holds_a_trailing_hump_level():
+    z = np.array([10.0, 9.0, np.nan, 8.0, 9.5, 9.6])
+    carved, flag = slope.carve(np.arange(6.0), z)
+    assert np.isnan(carved[2])
+    np.testing.assert_allclose(carved[[0, 1, 3, 4, 5]], [10, 9, 8, 8, 8])
+    np.testing.assert_array_equal(flag, [False, False, False, False, True, True])
+
+
+def test_windowed_theil_sen_matches_scipy_per_window():
+    rng = np.random.default_rng(11)
+    z = 50 - 0.003 * C + rng.normal(0, 0.05, C.size)
+    z[7] = np.nan
+    z[20] += 2.0                                    # an outlier the robust fit shrugs off
+    got = slope.theil_sen_windows(C, z, 200.0)
+    for i, c in enumerate(C):
+        w = (np.abs(C - c) <= 100.0) & np.isfinite(z)
+        ref = stats.theilslopes(z[w], C[w]).slope  # scipy reference
+        assert got[i] == pytest.approx(ref, rel=1e-12, abs=1e-15)
+
+
+def test_reach_fit_exact_on_a_line_and_floor_on_flat_or_adverse():
+    assert slope.reach_fit(C, 10 - 0.004 * C) == pytest.approx(-0.004, rel=1e-12)
+    flat = slope.profile_slopes(C, np.full(C.size, 5.0), 200.0, 1e-4)
+    assert flat.reach == 1e-4 and flat.reach_floored and flat.floored.all()
+    assert np.all(flat.station == 1e-4)
+    adverse = slope.profile_slopes(C, 5 + 0.001 * C, 200.0, 1e-4)
+    assert adverse.reach == 1e-4 and np.all(adverse.station == 1e-4)
+    fine = slope.profile_slopes(C, 5 - 0.001 * C, 200.0, 1e-4)
+    np.testing.assert_allclose(fine.station, 0.001, rtol=1e-9)
+    assert not fine.floored.any()
+
+
+def test_station_without_window_data_takes_the_reach_slope():
+    z = 10 - 0.002 * C
+    z[20:30] = np.nan                               # 200 m without a thalweg
+    fit = slope.profile_slopes(C, z, 40.0, 1e-5)
+    assert np.all(np.isfinite(fit.station))
+    np.testing.assert_allclose(fit.station, 0.002, rtol=1e-9)
+
+
+def test_embankment_is_carved_out_and_slope_stays_right(tmp_path):
+    """A road embankment 2.5 m above the floodplain, 12 m crest, 2:1 sides,
+    across a straight channel with slope 0.002 (terrain_fixtures): the raw
+    profile keeps the hump; the carved profile follows the true bed within
+    0.02 m (sampling of a float32 raster); the reach slope is within 1 % and the
+    station slopes around the embankment within 3 %."""
+    line = straight_line(800, 15.0)
+    v = make_valley_raster(tmp_path, line, res=1.0, valley_slope=0.002,
+                           embankment=dict(chainage=400.0, height=2.5, crest=12.0, side=2.0))
+    write_lines(tmp_path / "s.gpkg", [line])
+    cfg = RunConfig(dem=v.path, streams=tmp_path / "s.gpkg", half_width=25, spacing=10)
+    _, (r,) = cut_all(cfg)
+    p = r.profile
+    bed = v.bed(p.chainage.to_numpy())
+    hump = np.abs(p.chainage - 400) <= 6
+    assert (p.z_raw[hump] > bed[hump] + 3.0).all()      # floodplain + 2.5 m over a 1.5 m deep bed
+    np.testing.assert_allclose(p.z_carved, bed, atol=0.02)
+    assert p.carved[hump].all() and not p.carved[np.abs(p.chainage - 400) > 20].any()
+    assert "carved" in r.transect_flags[int(np.argmax(hump))]
+    assert r.reach_slope == pytest.approx(0.002, rel=0.01)
+    near = np.abs(r.chainage - 400) <= 100
+    np.testing.assert_allclose(r.slope[near], 0.002, rtol=0.03)
+    # uncarved, the fit is Theil–Sen and the hump covers few stations of any
+    # window, so the slope is barely moved: the robust fit's own protection
+    _, (raw,) = cut_all(cfg.replace(carve=False))
+    assert raw.reach_slope == pytest.approx(0.002, rel=0.05)
+    assert np.array_equal(raw.profile.z_used, raw.profile.z_raw, equal_nan=True)
+
+
+def test_water_surface_slope_of_hydro_flattened_terrain(tmp_path):
+    """Hydro-flattened water 0.4 m deep, flat across the channel, stepping down
+    every 50 m along it (terrain_fixtures): the water-surface slope fitted over
+    the reach is the channel slope within 2 %; every station is flagged; the
+    thalweg is the middle of the flat water, i.e. the channel centre (the line
+    is drawn 3 m off it)."""
+    line = straight_line(800, -10.0)
+    v = make_valley_raster(tmp_path, line, res=1.0, bottom_width=6.0, valley_slope=0.0015,
+                           water=dict(depth=0.4, step=50.0))
+    write_lines(tmp_path / "s.gpkg", [line], offset=3.0)
+    cfg = RunConfig(dem=v.path, streams=tmp_path / "s.gpkg", half_width=25, slope_source="water",
+                    slope_window=300.0)
+    _, (r,) = cut_all(cfg)
+    assert r.reach_slope == pytest.approx(0.0015, rel=0.02)
+    assert all("water-surface" in f for f in r.transect_flags)
+    assert "water-surface" in r.reach_flags and r.slope_source == "water"
+    # The channel centre is 3 m to the right of the drawn line; the water is
+    # 7.6 m wide. Stations exactly on a step (every 200 m here) sample a blend
+    # of two levels, which is not flat: there the thalweg is the low end of the
+    # water. Elsewhere the middle of the water is found within one pixel.
+    on_step = np.isclose(r.chainage % 50, 0) & (r.chainage > 0)
+    np.testing.assert_allclose(r.thalweg_shift[~on_step], 3.0, atol=1.0)
+    assert np.all(np.abs(r.thalweg_shift[on_step] - 3.0) <= 3.8 + 1e-9)  # still on the water
+    # the profile is the water: within 1 cm of the stepped level off the steps
+    level = v.bed(np.floor(r.chainage / 50) * 50) + 0.4
+    np.testing.assert_allclose(r.profile.z_raw[~on_step], level[~on_step], atol=0.01)
