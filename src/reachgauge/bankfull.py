@@ -175,11 +175,11 @@ def profile_noise(section: CrossSection) -> float:
 
 @dataclass(frozen=True)
 class _Curves:
-    stage: np.ndarray        # uniform trial stages, thalweg .. top + break rise
+    stage: np.ndarray        # uniform trial stages, thalweg .. top + 2 break rises
     step: float
     lag: int                 # break rise in grid steps
     first: int               # first index searched (depth >= 2 δ)
-    last: int                # last index searched (stage <= top)
+    last: int                # last index searched (stage <= top + break rise)
     geo: object              # section.geometry(stage)
     noise: float
     rise: float
@@ -194,12 +194,16 @@ def _curves(section: CrossSection) -> _Curves | None:
     if not relief > MIN_DEPTH_MULTIPLE * rise:
         return None
     step = min(rise / 5.0, relief / 200.0)
-    step = max(step, (relief + rise) / MAX_STAGES)
-    n = int(math.ceil((relief + rise) / step)) + 1
+    step = max(step, (relief + 2 * rise) / MAX_STAGES)
+    # Trial stages run one break rise past the lower profile end and are searched
+    # up to it: a transect often ends on the floodplain itself, so the break (water
+    # spreading over the plain) and the spill past the end coincide, and a method
+    # must see the curve turn just beyond the end to find it.
+    n = int(math.ceil((relief + 2 * rise) / step)) + 1
     stage = lo + step * np.arange(n)
     lag = max(1, int(round(rise / step)))
     first = int(math.ceil(MIN_DEPTH_MULTIPLE * rise / step))
-    last = int(np.searchsorted(stage, hi, side="right")) - 1
+    last = min(int(np.searchsorted(stage, hi + rise, side="right")) - 1, n - 1 - lag)
     if first > last:
         return None
     min_run = MIN_RUN_SAMPLES * float(np.median(np.diff(section.offset)))
@@ -309,12 +313,14 @@ def candidate_stages(section: CrossSection) -> dict:
 def _candidates(section: CrossSection, c: _Curves | None) -> dict:
     if c is None:
         return {m: float("nan") for m in AUTOMATIC_METHODS}
-    return {
+    found = {
         "bank-top": _bank_top(section, c),
         "min-width-depth": _min_width_depth(c),
         "bench": _bench(c),
         "max-hydraulic-depth": _max_hydraulic_depth(c),
     }
+    # a break seen just past the profile's lower end is the floodplain at that end
+    return {k: (min(v, section.top) if np.isfinite(v) else v) for k, v in found.items()}
 
 
 # ------------------------------------------------------------------ user methods
@@ -531,20 +537,27 @@ def _check_tolerance(tolerance):
     return t
 
 
-def flat_thalweg_width(section: CrossSection, tolerance: float = 0.02) -> float:
+# A hydro-flattened surface (or lidar returns off water) is flat to the millimetre,
+# while lidar ground has centimetres of scatter (REFERENCES: about 0.17-0.26 m RMSE in
+# one study; 3-5 cm on open ground is common practice): a run of points within 5 mm
+# of the thalweg is water, not bed.
+FLAT_TOLERANCE = 0.005
+
+
+def flat_thalweg_width(section: CrossSection, tolerance: float = FLAT_TOLERANCE) -> float:
     """Width (m) of the bottom that lies within ``tolerance`` (m) of the thalweg
     elevation and is connected to the thalweg: the span of the run of profile points,
     containing the lowest, that all stand no more than ``tolerance`` above it.
 
     A hydro-flattened DEM, or lidar returns off a water surface, show up as a
     perfectly flat bottom; a sampled natural bed rarely keeps several points within
-    2 cm (the default is about the precision of lidar on a smooth surface, [memory]).
+    5 mm of each other (see :data:`FLAT_TOLERANCE`).
     """
     a, b = _flat_run(section, _check_tolerance(tolerance))
     return float(section.offset[b] - section.offset[a])
 
 
-def is_flat_thalweg(section: CrossSection, tolerance: float = 0.02, *, channel_width=None,
+def is_flat_thalweg(section: CrossSection, tolerance: float = FLAT_TOLERANCE, *, channel_width=None,
                     min_fraction: float = 0.2, min_points: int = 3) -> bool:
     """True when the flat bottom (:func:`flat_thalweg_width`) looks like a water surface.
 
@@ -572,7 +585,8 @@ def is_flat_thalweg(section: CrossSection, tolerance: float = 0.02, *, channel_w
 _BED_STEPS = 100
 
 
-def baseflow_correct(section: CrossSection, depth=None, area=None, tolerance: float = 0.02
+def baseflow_correct(section: CrossSection, depth=None, area=None,
+                     tolerance: float = FLAT_TOLERANCE
                      ) -> CrossSection:
     """Lower the flat water-surface bottom of ``section`` by a parabolic bed.
 
