@@ -24,8 +24,10 @@ def check_flows(ps: ProfileSet, flows: dict[str, float], slope, n, banks,
                 bankfull_stage, bankfull_q) -> pd.DataFrame:
     """One row per (flow, transect): ``flow``, ``discharge`` (m³/s), ``stage``,
     ``depth``, ``freeboard`` (m), ``q_ratio``, ``out_of_bank`` (bool),
-    ``over_profile`` (bool: the flow cannot be carried inside the profile, so
-    the stage is unknown and the flow certainly leaves the channel)."""
+    ``over_profile`` (bool: the water overtops an end of the transect; its
+    stage counts only the water inside the transect, an upper bound where the
+    plain continues, and NaN if even three times the profile's depth cannot
+    carry the flow)."""
     rows = []
     bf_stage = np.asarray(bankfull_stage, dtype=float)
     bf_q = np.asarray(bankfull_q, dtype=float)
@@ -43,7 +45,9 @@ def check_flows(ps: ProfileSet, flows: dict[str, float], slope, n, banks,
             "q_ratio": ratio,
             # a stage a hair above bankfull from round-off is not out of bank
             "out_of_bank": (~reached) | (freeboard < -1e-6),
-            "over_profile": ~reached,
+            # over the transect's ends: the stage counts only the water inside the
+            # transect, an upper bound if the plain goes on (or unknown if not reached)
+            "over_profile": (~reached) | (stage > ps.top + 1e-9),
             "index": np.arange(ps.count),
         }))
     if not rows:

@@ -287,21 +287,25 @@ class ProfileSet:
         k = self.conveyance(stage, n, banks)
         return k * (np.sqrt(sl)[:, None] if k.ndim == 2 else np.sqrt(sl))
 
-    def stage_for_discharge(self, q, slope, n, banks=None):
+    def stage_for_discharge(self, q, slope, n, banks=None, reach=3.0):
         """Normal-depth stage (t,) for discharge ``q`` (scalar or (t,)) on every
         profile: the lowest stage inside the profile carrying ``q``.
 
-        A grid of stages (129 even steps from the thalweg to the profile's lower
-        end) brackets the first crossing; Chandrupatla's method
-        (scipy.optimize.elementwise.find_root) refines all profiles at once.
+        A grid of stages (even steps from the thalweg to ``reach`` times the
+        profile's depth at its lower end) brackets the first crossing;
+        Chandrupatla's method (scipy.optimize.elementwise.find_root) refines all
+        profiles at once. Above the lower end the water spills; only the water
+        inside the profile counts (as if walled at the ends, with no wall
+        perimeter), so such a stage is an upper bound where the plain continues
+        beyond the transect: callers flag it (``stage > self.top``).
         Returns ``(stage, reached)``: ``reached`` is False where ``q`` exceeds
-        what the profile carries below its lower end (``stage`` is then NaN).
+        what the profile carries even there (``stage`` is then NaN).
         """
         t = self.count
         qq = np.broadcast_to(np.asarray(manning.check_discharge(q), dtype=float), (t,))
         sl = np.broadcast_to(np.asarray(manning.check_slope(slope), dtype=float), (t,))
         nn, bk = self._prepare(n, banks)
-        frac = np.linspace(0.0, 1.0, 129)
+        frac = np.linspace(0.0, float(reach), int(128 * reach) + 1)
         grid = self.thalweg[:, None] + frac[None, :] * (self.top - self.thalweg)[:, None]
         qg = self.discharge(grid, sl, nn, bk)
         above = qg >= qq[:, None]
