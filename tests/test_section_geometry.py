@@ -116,3 +116,12 @@ def test_bad_profiles_raise_clear_errors(kwargs, msg):
 def test_nan_points_can_be_dropped():
     cs = CrossSection([0, 1, 2, 3, 4], [2, np.nan, 0, 1, 2], drop_nan=True)
     assert cs.offset.tolist() == [0, 2, 3, 4]
+
+
+def test_top_is_the_lower_of_the_highest_points_either_side():
+    # levee-like banks at 2.0 and 2.5 with the ground falling to 1.0 at both ends:
+    # water up to 2.0 stays in the channel; above it, it flows over the left bank
+    cs = CrossSection([0, 5, 8, 10, 12, 15, 20], [1.0, 2.0, 0.5, 0.0, 0.5, 2.5, 1.0])
+    assert cs.top == 2.0
+    g = cs.geometry(np.array([1.5, 1.99, 2.01]))
+    assert list(g.spills) == [False, False, True]

@@ -95,3 +95,15 @@ def test_edges_bound_the_top_width(p, frac):
     g = cs.geometry(s)
     assert g.left_edge <= cs.thalweg_offset <= g.right_edge
     assert g.top_width <= g.right_edge - g.left_edge + 1e-9
+
+
+@given(profiles(), st.floats(1e-6, 1.0))
+def test_spill_exactly_above_top(p, frac):
+    x, z = p
+    cs = CrossSection(x, z)
+    if cs.top - cs.thalweg < 1e-6:
+        return
+    below = cs.geometry(cs.thalweg + frac * (cs.top - cs.thalweg))
+    above = cs.geometry(cs.top + 1e-6)
+    assert not below.spills
+    assert above.spills

@@ -73,13 +73,16 @@ class ProfileSet:
         rows = np.arange(t)
         self.thalweg = filled[rows, self.i0]
         self.thalweg_offset = x[self.i0]
-        self.top = np.minimum(filled[rows, lo], filled[rows, hi])
+
         # running maxima outward from the thalweg; -inf beyond the thalweg so they
         # do not count, +inf beyond the profile ends (never "below the stage")
         left = np.where(idx[None, :] <= self.i0[:, None], filled, -np.inf)
         self._left_max = np.maximum.accumulate(left[:, ::-1], axis=1)[:, ::-1]
         right = np.where(idx[None, :] >= self.i0[:, None], filled, -np.inf)
         self._right_max = np.maximum.accumulate(right, axis=1)
+        # highest stage inside the profile: the lower of the two sides' highest
+        # points (see CrossSection.top)
+        self.top = np.minimum(self._left_max[rows, lo], self._right_max[rows, hi])
         self._inside = inside
         self._dx = np.diff(x)
 

@@ -185,8 +185,11 @@ class CrossSection:
 
     @property
     def top(self) -> float:
-        """Highest stage that stays inside the profile: the lower of its two ends."""
-        return float(min(self.elevation[0], self.elevation[-1]))
+        """Highest stage that stays inside the profile: the lower of the highest
+        points on either side of the thalweg. Above it the connected water
+        reaches an end of the profile (it spills); an end lower than a bank in
+        between is behind that bank and does not limit the section."""
+        return float(min(self._left_max[-1], self._right_max[-1]))
 
     def __repr__(self) -> str:
         return (f"CrossSection({self.offset.size} points, offsets {self.offset[0]:g}"
