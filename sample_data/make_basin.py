@@ -80,7 +80,8 @@ better than a paving row (fluids' "Asphalt, Rough" is 0.016). The paved crest
 is wetted only once a flood overtops the road.
 
 The "measured" flows in observations.csv are Manning's equation on the true
-section at the stated depth above the thalweg. They use n = 0.038 and the
+section at the stated depth above the thalweg; the stage column is that depth
+above the true thalweg elevation (floodplain at the channel less the bank height). They use n = 0.038 and the
 reach's mean channel slope (bed fall over channel length), so that calibration
 can recover n. The
 Cowan terms in cowan.csv lie inside the ranges of Arcement, G. J., and
@@ -870,8 +871,16 @@ def main(out: Path = DEFAULT_OUT) -> Path:
     obs = []
     for rid, chainage, depth in OBSERVATIONS:
         qo = manning_q(plan.dims[rid], depth, facts[rid]["channel_slope"], N_OBSERVED)
-        obs.append((rid, f"{chainage:.1f}", f"{depth:.2f}", f"{qo:.3f}"))
-    write_csv(out / "observations.csv", ("reach_id", "chainage", "depth", "discharge"), obs)
+        # the crew's water-surface elevation: floodplain at the channel, less the
+        # bank height (the thalweg), plus the measured depth
+        xy = np.asarray(plan.reach_lines[rid], dtype=float)
+        s_line = np.concatenate([[0.0], np.cumsum(np.hypot(*np.diff(xy, axis=0).T))])
+        px, py = np.interp(chainage, s_line, xy[:, 0]), np.interp(chainage, s_line, xy[:, 1])
+        plain = float(valley_surface(np.array([px]), np.array([py]), plan)[0][0])
+        stage = plain - plan.dims[rid]["bank_height"] + depth
+        obs.append((rid, f"{chainage:.1f}", f"{stage:.3f}", f"{depth:.2f}", f"{qo:.3f}"))
+    write_csv(out / "observations.csv", ("reach_id", "chainage", "stage", "depth", "discharge"),
+              obs)
     write_csv(out / "cowan.csv", ("reach_id", "base", "irregularity", "variation", "obstruction",
                                   "vegetation", "meander"),
               [(rid, *(f"{t:.3f}" for t in terms),

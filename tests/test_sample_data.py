@@ -479,8 +479,11 @@ def manning_q(r, y, slope, n):
 
 def test_observations_are_manning_on_the_true_section(truth):
     obs = read_csv("observations.csv")
-    assert list(obs.columns) == ["reach_id", "chainage", "depth", "discharge"]
+    assert list(obs.columns) == ["reach_id", "chainage", "stage", "depth", "discharge"]
     assert 3 <= len(obs) <= 4
+    # the water surface falls downstream: stage on the main stem decreases with position
+    main = obs[obs.reach_id.str.startswith("M")]
+    assert np.all(np.diff(main.stage.to_numpy()) < 0)
     for _, o in obs.iterrows():
         r = truth["reaches"][o.reach_id]
         assert 0.3 * r["bank_height"] < o.depth < r["bank_height"]        # in bank
