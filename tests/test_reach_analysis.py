@@ -68,7 +68,7 @@ def test_bankfull_figures_match_closed_form():
     assert ok.bankfull_depth.to_numpy() == pytest.approx(1.2, abs=1e-9)
     for _, row in ok.iterrows():
         y = row.bankfull_depth
-        assert row.area == pytest.approx((B + Z * y) * y, rel=1e-9)
+        assert row.flow_area == pytest.approx((B + Z * y) * y, rel=1e-9)
         # banks at the water edges: the channel carries everything in bank
         assert row.discharge == pytest.approx(closed_form_q(y, 0.035), rel=1e-6)
         assert row.q_left == pytest.approx(0.0, abs=1e-9)
@@ -122,8 +122,8 @@ def test_user_stages_and_baseflow_correction():
     res = analyse_reach(rs, cfg)
     s = res.stages[res.stages.station == 0]
     d05 = s[s.request == "depth 0.5"].iloc[0]
-    assert d05.area == pytest.approx((B + Z * 0.5) * 0.5, rel=1e-9)
+    assert d05.flow_area == pytest.approx((B + Z * 0.5) * 0.5, rel=1e-9)
     e = s[s.request == "elevation 100.5"].iloc[0]
     assert e.depth == pytest.approx(0.5)
     more = analyse_reach(rs, RunConfig(n=0.035, baseflow_depth=0.3))
-    assert (more.transects.area.dropna() > res.transects.area.dropna() + 0.3).all()
+    assert (more.transects.flow_area.dropna() > res.transects.flow_area.dropna() + 0.3).all()

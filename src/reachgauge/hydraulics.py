@@ -74,6 +74,7 @@ def figures(section: CrossSection, stage, slope: float, n, units: str = "si") ->
 
 # ====================================================== a whole reach at once
 from dataclasses import dataclass, field  # noqa: E402
+from types import SimpleNamespace  # noqa: E402
 
 from . import calibration, capacity, flags, roughness  # noqa: E402
 from .profiles import ProfileSet  # noqa: E402
@@ -248,16 +249,21 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
         if n_parts[i, 1] < roughness.TABLE_RANGE[0] or n_parts[i, 1] > roughness.TABLE_RANGE[1]:
             tflags[i].append("n-unusual")
 
-    # ---- figures at bankfull
+    # ---- figures at bankfull: the channel between the banks (vertical lines at the
+    # bank offsets; Chow 1959, §6-9). An automatic pick sits where the water has
+    # begun to spread onto the plain, so the whole water surface would count a
+    # strip of floodplain as channel width; the discharge is the total
+    # (divided-channel method), with the overbank shares given beside it.
     st = np.where(ok, bf_stage, ps.thalweg)
-    geo = ps.geometry(st)
     parts = ps.subsections(st, banks)
     rp = parts.hydraulic_radius
     q_parts = np.stack([manning.conveyance(parts.area[k], rp[k], n_parts[:, k]) for k in range(3)])
     q_parts = q_parts * np.sqrt(slope)
     q = q_parts.sum(axis=0)
-    vel = _ratio(q, geo.area)
-    hd = geo.hydraulic_depth
+    a_ch, p_ch, w_ch, r_ch = parts.area[1], parts.wetted_perimeter[1], parts.top_width[1], rp[1]
+    hd = _ratio(a_ch, w_ch)
+    vel = _ratio(q_parts[1], a_ch)
+    geo = SimpleNamespace(top_width=w_ch, area=a_ch)
     tr = pd.DataFrame({
         "reach_id": rid, "station": np.arange(t), "chainage": np.asarray(rs.chainage, float),
         "status": status, "flags": [flags.join(f) for f in tflags],
@@ -269,15 +275,15 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
         "bank_left": banks[:, 0], "bank_right": banks[:, 1], "method_spread": spread,
         "n_channel": n_parts[:, 1], "n_left": n_parts[:, 0], "n_right": n_parts[:, 2],
         "n_source": src,
-        "area": geo.area, "perimeter": geo.wetted_perimeter, "top_width": geo.top_width,
-        "hyd_radius": geo.hydraulic_radius, "hyd_depth": hd, "width_depth": _ratio(geo.top_width, hd),
+        "flow_area": a_ch, "perimeter": p_ch, "top_width": w_ch,
+        "hyd_radius": r_ch, "hyd_depth": hd, "width_depth": _ratio(w_ch, hd),
         "velocity": vel, "discharge": q, "froude": manning.froude(vel, hd),
-        "shear": manning.shear_stress(geo.hydraulic_radius, slope),
-        "stream_power": manning.unit_stream_power(q, slope, geo.top_width),
+        "shear": manning.shear_stress(r_ch, slope),
+        "stream_power": manning.unit_stream_power(q_parts[1], slope, w_ch),
         "q_left": q_parts[0], "q_channel": q_parts[1], "q_right": q_parts[2],
         "n_observed": n_obs,
     })
-    figure_cols = ["bankfull_stage", "bankfull_depth", "area", "perimeter", "top_width", "hyd_radius",
+    figure_cols = ["bankfull_stage", "bankfull_depth", "flow_area", "perimeter", "top_width", "hyd_radius",
                    "hyd_depth", "width_depth", "velocity", "discharge", "froude", "shear",
                    "stream_power", "q_left", "q_channel", "q_right"]
     tr.loc[~ok, figure_cols] = np.nan
@@ -336,11 +342,11 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
     okq = q[ok]
     reach_row = {
         "reach_id": rid, "name": reach.name or "", "status": rs.status, "message": rs.message,
-        "orientation": reach.orientation, "length": reach.length_m, "transects": t,
+        "orientation": reach.orientation, "reach_length": reach.length_m, "transects": t,
         "transects_ok": int(ok.sum()), "transects_flagged": int(sum(bool(f) for f in tr["flags"])),
         "slope": rs.reach_slope, "slope_flags": getattr(rs, "slope_flags", ""),
         "bankfull_depth": summary.median_depth, "depth_spread": summary.iqr,
-        "top_width": _nanmedian(geo.top_width[ok]), "area": _nanmedian(geo.area[ok]),
+        "top_width": _nanmedian(geo.top_width[ok]), "flow_area": _nanmedian(geo.area[ok]),
         "discharge": q_med,
         "discharge_p25": float(np.nanpercentile(okq, 25)) if okq.size else np.nan,
         "discharge_p75": float(np.nanpercentile(okq, 75)) if okq.size else np.nan,
@@ -384,7 +390,7 @@ def _curve(ps, stages, slope, n_parts, banks):
 def _curve_table(ps, rid, chainage, stages, slope, n_parts, banks, ok):
     rows = np.nonzero(ok)[0]
     if rows.size == 0:
-        return pd.DataFrame(columns=["reach_id", "station", "chainage", "stage", "depth", "area",
+        return pd.DataFrame(columns=["reach_id", "station", "chainage", "stage", "depth", "flow_area",
                                      "perimeter", "top_width", "hyd_radius", "velocity",
                                      "discharge", "spills"])
     sub = ps.take(rows)
@@ -394,7 +400,7 @@ def _curve_table(ps, rid, chainage, stages, slope, n_parts, banks, ok):
     return pd.DataFrame({
         "reach_id": rid, "station": np.repeat(rows, m),
         "chainage": np.repeat(np.asarray(chainage, float)[rows], m),
-        "stage": st.ravel(), "depth": geo.depth.ravel(), "area": geo.area.ravel(),
+        "stage": st.ravel(), "depth": geo.depth.ravel(), "flow_area": geo.area.ravel(),
         "perimeter": geo.wetted_perimeter.ravel(), "top_width": geo.top_width.ravel(),
         "hyd_radius": geo.hydraulic_radius.ravel(), "velocity": _ratio(q, geo.area).ravel(),
         "discharge": q.ravel(), "spills": geo.spills.ravel(),
@@ -411,7 +417,7 @@ def _stage_table(ps, rid, chainage, requests, slope, n_parts, banks, ok):
         return tab
     k = len(labels)
     tab.insert(3, "request", np.tile(labels, int(ok.sum())))
-    hd = _ratio(tab["area"], tab["top_width"])
+    hd = _ratio(tab["flow_area"], tab["top_width"])
     tab["froude"] = manning.froude(tab["velocity"].to_numpy(), hd)
     sl = np.repeat(slope[ok], k)
     tab["shear"] = manning.shear_stress(tab["hyd_radius"].to_numpy(), sl)

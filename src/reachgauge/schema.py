@@ -49,17 +49,17 @@ TRANSECT_FIELDS = {
     "n_left": ("n", "Manning's n of the left overbank"),
     "n_right": ("n", "Manning's n of the right overbank"),
     "n_source": ("text", "where n came from: default, field, cowan, landcover, calibrated"),
-    "area": ("area", "flow area at bankfull"),
-    "perimeter": ("length", "wetted perimeter at bankfull"),
-    "top_width": ("length", "water-surface width at bankfull"),
-    "hyd_radius": ("length", "hydraulic radius at bankfull, area / wetted perimeter"),
-    "hyd_depth": ("length", "hydraulic depth at bankfull, area / top width"),
+    "flow_area": ("area", "channel flow area at bankfull (between the bank offsets)"),
+    "perimeter": ("length", "channel wetted perimeter at bankfull"),
+    "top_width": ("length", "channel water-surface width at bankfull (bank to bank)"),
+    "hyd_radius": ("length", "channel hydraulic radius at bankfull, area / wetted perimeter"),
+    "hyd_depth": ("length", "channel hydraulic depth at bankfull, area / top width"),
     "width_depth": ("none", "top width / hydraulic depth at bankfull"),
-    "velocity": ("velocity", "mean velocity at bankfull"),
-    "discharge": ("discharge", "Manning discharge at bankfull (divided-channel method)"),
-    "froude": ("none", "Froude number at bankfull"),
+    "velocity": ("velocity", "mean channel velocity at bankfull, q_channel / area"),
+    "discharge": ("discharge", "Manning discharge at bankfull, channel plus overbanks (divided-channel method)"),
+    "froude": ("none", "channel Froude number at bankfull"),
     "shear": ("stress", "mean boundary shear stress at bankfull, gamma R S"),
-    "stream_power": ("power", "unit stream power at bankfull, gamma Q S / top width"),
+    "stream_power": ("power", "channel unit stream power at bankfull, gamma q_channel S / top width"),
     "q_left": ("discharge", "bankfull discharge carried by the left overbank"),
     "q_channel": ("discharge", "bankfull discharge carried by the channel"),
     "q_right": ("discharge", "bankfull discharge carried by the right overbank"),
@@ -74,7 +74,7 @@ REACH_FIELDS = {
     "status": ("text", "ok, or why the reach has no figures"),
     "message": ("text", "details of the status"),
     "orientation": ("text", "how the downstream direction was decided"),
-    "length": ("length", "centreline length"),
+    "reach_length": ("length", "centreline length"),
     "transects": ("count", "transects cut"),
     "transects_ok": ("count", "transects with figures"),
     "transects_flagged": ("count", "transects with at least one flag"),
@@ -83,7 +83,7 @@ REACH_FIELDS = {
     "bankfull_depth": ("length", "median bankfull depth of the transects"),
     "depth_spread": ("length", "interquartile range of the transects' bankfull depths"),
     "top_width": ("length", "median bankfull top width"),
-    "area": ("area", "median bankfull flow area"),
+    "flow_area": ("area", "median bankfull channel flow area"),
     "discharge": ("discharge", "median bankfull discharge"),
     "discharge_p25": ("discharge", "25th percentile of the transects' bankfull discharge"),
     "discharge_p75": ("discharge", "75th percentile of the transects' bankfull discharge"),
@@ -103,7 +103,7 @@ RATING_FIELDS = {
     "chainage": ("length", "chainage of the transect (reach median curve: NaN)"),
     "stage": ("length", "water-surface elevation (reach curve: median thalweg + depth)"),
     "depth": ("length", "stage minus thalweg elevation"),
-    "area": ("area", "flow area"),
+    "flow_area": ("area", "flow area"),
     "perimeter": ("length", "wetted perimeter"),
     "top_width": ("length", "water-surface width"),
     "hyd_radius": ("length", "hydraulic radius"),
@@ -117,7 +117,7 @@ STAGE_FIELDS = {
     "station": ("count", "transect number"),
     "chainage": ("length", "chainage of the transect"),
     "request": ("text", "the stage asked for: 'depth D' or 'elevation E'"),
-    **{k: RATING_FIELDS[k] for k in ("stage", "depth", "area", "perimeter", "top_width",
+    **{k: RATING_FIELDS[k] for k in ("stage", "depth", "flow_area", "perimeter", "top_width",
                                       "hyd_radius", "velocity", "discharge", "spills")},
     "froude": ("none", "Froude number"),
     "shear": ("stress", "mean boundary shear stress"),
@@ -134,7 +134,8 @@ DESIGN_FIELDS = {
     "freeboard": ("length", "bankfull stage minus design stage (negative: out of bank)"),
     "q_ratio": ("none", "design discharge / bankfull discharge"),
     "out_of_bank": ("flag", "the flow leaves the channel"),
-    "over_profile": ("flag", "the flow overtops the transect's ends: widen the transect"),
+    "over_profile": ("flag", "the flow overtops an end of the transect: its stage counts only the "
+                             "water inside the transect (an upper bound); widen the transect"),
     "share_out": ("none", "reach row: fraction of transects where the flow is out of bank"),
 }
 
@@ -157,6 +158,13 @@ CALIBRATION_FIELDS = {
     "table_rows": ("text", "Chow (1959) Table 5-6 channel rows whose range holds n_back"),
 }
 
+SAMPLE_SECTION_FIELDS = {
+    "reach_id": ("text", "reach identifier"),
+    "station": ("count", "transect number"),
+    "offset": ("length", "distance from the transect's left end (left bank looking downstream)"),
+    "elevation": ("length", "ground elevation as sampled (after any baseflow correction)"),
+}
+
 LAYERS = {
     "transects": TRANSECT_FIELDS,
     "reaches": REACH_FIELDS,
@@ -165,6 +173,7 @@ LAYERS = {
     "design_checks": DESIGN_FIELDS,
     "profile": PROFILE_FIELDS,
     "calibration": CALIBRATION_FIELDS,
+    "sample_sections": SAMPLE_SECTION_FIELDS,
 }
 
 
@@ -196,3 +205,33 @@ def column_order(df: pd.DataFrame, fields: dict) -> pd.DataFrame:
 
 __all__ = ["LAYERS", "TO_US", "UNIT_LABELS", "to_units", "unit_of", "empty_frame", "column_order",
            "np"]
+
+
+LAYER_NOTES = {
+    "transects": "LineString, one row per transect (re-centred on the thalweg, drawn from the left "
+                 "bank to the right bank looking downstream); figures at the bankfull stage.",
+    "reaches": "LineString, one row per reach (oriented downstream), summary figures.",
+    "thalweg_points": "Point, the thalweg of every transect (fields as in transects).",
+    "rating_curves": "table, one row per transect and stage; station -1 is the reach's median curve.",
+    "stage_figures": "table, figures at the stages asked for with --depths / --elevations.",
+    "design_checks": "table, one row per transect and design flow; station -1 rows summarise the reach.",
+    "profile": "table, the longitudinal thalweg profile of each reach, raw and carved.",
+    "calibration": "table, measured flows matched to transects and the n they imply.",
+    "sample_sections": "table, ground points of a few transects per reach (for plots).",
+    "run_info": "table of key and value: parameters, units, versions, input fingerprints.",
+}
+
+
+def markdown() -> str:
+    """Field tables of every layer, for the README (kept in sync by a test)."""
+    out = []
+    for layer, fields in LAYERS.items():
+        out.append(f"#### `{layer}`\n\n{LAYER_NOTES[layer]}\n")
+        out.append("| field | unit (si / us) | meaning |\n|---|---|---|")
+        for name, (kind, meaning) in fields.items():
+            si, us = UNIT_LABELS["si"].get(kind, ""), UNIT_LABELS["us"].get(kind, "")
+            unit = f"{si} / {us}" if si and si != us else si
+            out.append(f"| `{name}` | {unit} | {meaning} |")
+        out.append("")
+    out.append(f"#### `run_info`\n\n{LAYER_NOTES['run_info']}\n")
+    return "\n".join(out)
