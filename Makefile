@@ -14,15 +14,15 @@ $(STAMP): pyproject.toml
 	touch $(STAMP)
 
 demo: $(STAMP)
-	mkdir -p demo_output
-	$(BIN)/reachgauge section sample_data/gauged_section.csv --stage 100.9 --slope 0.0021 \
-	    --discharge 6.2 --rating demo_output/gauged_rating.csv --overwrite
+	$(BIN)/reachgauge demo --out demo_output
 
 test: $(STAMP)
 	$(BIN)/python -m pytest -q
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_section.py
+	$(BIN)/python benchmarks/bench_cutting.py
+	$(BIN)/python benchmarks/bench_batch.py
 
 clean:
 	rm -rf $(VENV) demo_output .pytest_cache .hypothesis

@@ -218,3 +218,27 @@ def validate(cfg: RunConfig) -> None:
                          "give both the land-cover raster and its class-to-n CSV")
     if cfg.jobs < 0:
         raise InputError("jobs must be 0 (one per core) or more", "give --jobs N")
+
+
+def markdown() -> str:
+    """Option tables of ``reachgauge run`` by group, for the README (kept in sync by a test)."""
+    out = []
+    for group, fields in fields_by_group().items():
+        out.append(f"**{group}** (TOML table `[{group}]`)\n")
+        out.append("| option | TOML key | default | meaning |\n|---|---|---|---|")
+        for f in fields:
+            d = f.default
+            if d is None or d == ():
+                dt = "—"
+            elif isinstance(d, bool):
+                dt = "on" if d else "off"
+            else:
+                dt = f"{d:g} m" if f.metadata.get("length") and isinstance(d, float) else f"{d}"
+            sep = " \\| "
+            extra = f" ({sep.join(f.metadata['choices'])})" if "choices" in f.metadata else ""
+            flag = "--" + f.name.replace("_", "-")
+            if isinstance(d, bool):
+                flag += f" / --no-{f.name.replace('_', '-')}"
+            out.append(f"| `{flag}` | `{f.name}` | {dt} | {f.metadata['help']}{extra} |")
+        out.append("")
+    return "\n".join(out)

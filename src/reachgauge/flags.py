@@ -62,3 +62,14 @@ def join(codes) -> str:
             if part and part not in seen:
                 seen.append(part)
     return ";".join(seen)
+
+
+def markdown() -> str:
+    """Tables of status and flag codes, for the README (kept in sync by a test)."""
+    out = ["| reach status | meaning |", "|---|---|"]
+    out += [f"| `{k}` | {v} |" for k, v in REACH_STATUS.items()]
+    out += ["", "| transect status | meaning |", "|---|---|"]
+    out += [f"| `{k}` | {v} |" for k, v in TRANSECT_STATUS.items()]
+    out += ["", "| flag | meaning |", "|---|---|"]
+    out += [f"| `{k}` | {v} |" for k, v in FLAGS.items()]
+    return "\n".join(out) + "\n"

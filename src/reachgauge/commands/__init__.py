@@ -1,0 +1,1 @@
+"""One module per command; each a thin layer over the Python API."""

@@ -1,0 +1,127 @@
+"""Options shared by commands, generated once from :class:`RunConfig` so the
+CLI, the TOML file and the API can never drift apart."""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import sys
+import time
+import typing
+from pathlib import Path
+
+from ..config import RunConfig, fields_by_group, from_mapping, read_toml
+from ..errors import InputError
+
+GROUP_TITLES = {
+    "inputs": "inputs and units",
+    "network": "reaches",
+    "transects": "transects and thalweg",
+    "slope": "slope",
+    "bankfull": "bankfull stage",
+    "roughness": "Manning's n",
+    "stages": "stages, rating curves and design flows",
+    "running": "running",
+}
+
+
+def _default_text(f):
+    d = f.default
+    if d is None or d == ():
+        return ""
+    if isinstance(d, bool):
+        return " (default: on)" if d else " (default: off)"
+    unit = " m" if f.metadata.get("length") else ""
+    return f" (default: {d:g}{unit})" if isinstance(d, float) else f" (default: {d})"
+
+
+def add_config_options(parser: argparse.ArgumentParser) -> None:
+    """One option per RunConfig field, in groups; lengths are in metres, or in
+    feet with ``--units us``."""
+    hints = typing.get_type_hints(RunConfig)
+    for group, fields in fields_by_group().items():
+        g = parser.add_argument_group(GROUP_TITLES.get(group, group))
+        for f in fields:
+            flag = "--" + f.name.replace("_", "-")
+            help_text = f.metadata["help"] + _default_text(f)
+            if f.metadata.get("length"):
+                help_text += "; ft with --units us"
+            hint = hints[f.name]
+            kw = dict(dest=f.name, default=None, help=help_text)
+            if hint is bool:
+                g.add_argument(flag, action=argparse.BooleanOptionalAction, **kw)
+                continue
+            if "choices" in f.metadata:
+                kw["choices"] = f.metadata["choices"]
+            args = typing.get_args(hint)
+            base = next((a for a in args if a is not type(None)), hint) if args else hint
+            if typing.get_origin(hint) is tuple or typing.get_origin(base) is tuple:
+                inner = typing.get_args(base if typing.get_origin(base) is tuple else hint)[0]
+                g.add_argument(flag, type=inner, nargs="+", metavar="V", **kw)
+                continue
+            typ = {int: int, float: float, str: str}.get(base, str)
+            if base is Path or (args and Path in args):
+                typ = str
+                kw["metavar"] = "PATH"
+            g.add_argument(flag, type=typ, **kw)
+
+
+def config_from_args(args) -> RunConfig:
+    """Config file first, command-line values over it."""
+    values = read_toml(args.config) if getattr(args, "config", None) else {}
+    for f in dataclasses.fields(RunConfig):
+        v = getattr(args, f.name, None)
+        if v is not None:
+            values[f.name] = v
+    return from_mapping(values, source=Path(args.config).name if getattr(args, "config", None)
+                        else "options")
+
+
+class Progress:
+    """A progress bar on a terminal (reaches, transects per second, time left);
+    plain log lines otherwise; nothing with ``quiet``."""
+
+    def __init__(self, quiet=False, verbose=False, stream=None):
+        self.quiet, self.verbose = quiet, verbose
+        self.stream = stream or sys.stderr
+        self.tty = hasattr(self.stream, "isatty") and self.stream.isatty()
+        self.bar = None
+        self.t0 = time.perf_counter()
+        self.transects = 0
+
+    def __call__(self, out, done, total):
+        if self.quiet:
+            return
+        self.transects += int(out.reach_row.get("transects", 0) or 0)
+        rate = self.transects / max(time.perf_counter() - self.t0, 1e-9)
+        if self.tty:
+            if self.bar is None:
+                from tqdm import tqdm
+
+                self.bar = tqdm(total=total, unit="reach", file=self.stream, dynamic_ncols=True)
+            self.bar.set_postfix_str(f"{rate:.0f} transects/s")
+            self.bar.update(1)
+            if done == total:
+                self.bar.close()
+        else:
+            status = out.reach_row.get("status", "")
+            print(f"reach {out.reach_id}: {status}, {out.reach_row.get('transects', 0)} transects, "
+                  f"{out.seconds:.1f} s [{done}/{total}, {rate:.0f} transects/s]", file=self.stream)
+        if self.verbose and out.reach_row.get("message"):
+            print(f"  {out.reach_row['message']}", file=self.stream)
+        if out.error and self.verbose:
+            print(out.error, file=self.stream)
+
+    def info(self, text):
+        if not self.quiet:
+            print(text, file=self.stream)
+
+
+def raise_if_missing(cfg):
+    if cfg.dem is None or cfg.streams is None:
+        raise InputError("the terrain raster and the streams are both needed",
+                         "give --dem RASTER and --streams VECTOR (or set them in --config)")
+    for name in ("dem", "streams"):
+        p = getattr(cfg, name)
+        if not Path(p).exists() and "://" not in str(p) and not str(p).startswith("/vsi"):
+            raise InputError(f"{name} file {str(p)!r} does not exist", f"check the --{name} path")

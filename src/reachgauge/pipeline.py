@@ -1,0 +1,296 @@
+"""Run the steps for every reach: serially, in a local process pool, or on a
+Dask cluster.
+
+A reach is the unit of work: :func:`process_reach` gets one reach's geometry
+and parameters (all picklable), opens the raster itself, reads only the window
+around the reach, and returns plain tables. Nothing holds the whole raster.
+"""
+
+from __future__ import annotations
+
+import os
+import time
+import traceback
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from . import cutting, hydraulics, network as network_mod, tables
+from .config import RunConfig
+from .errors import InputError
+from .manning import FOOT
+
+
+@dataclass
+class SharedInputs:
+    """Run-wide inputs read once at the start (all SI)."""
+
+    flows: dict = field(default_factory=dict)            # reach_id -> {flow: m³/s}
+    observations: pd.DataFrame | None = None
+    cowan: dict | None = None
+    class_table: dict | None = None
+
+    def for_reach(self, reach) -> hydraulics.ReachInputs:
+        rid = str(reach.reach_id)
+        obs = None
+        if self.observations is not None:
+            obs = self.observations[self.observations["reach_id"] == rid].reset_index(drop=True)
+        return hydraulics.ReachInputs(flows=dict(self.flows.get(rid, {})), observations=obs,
+                                      cowan=self.cowan, class_table=self.class_table)
+
+
+@dataclass
+class ReachOutput:
+    """What one reach task returns: its tables (SI) and the geometry of its lines
+    (work CRS)."""
+
+    reach_id: str
+    result: hydraulics.ReachResult | None
+    reach_row: dict
+    transect_lines: list = field(default_factory=list)
+    thalweg_xy: np.ndarray | None = None
+    offsets: np.ndarray | None = None
+    error: str | None = None
+    seconds: float = 0.0
+
+
+def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:
+    """Read the CSV inputs and the design-flow fields of the streams."""
+    shared = SharedInputs()
+    if cfg.design_flows:
+        shared.flows = tables.read_design_flows(cfg.design_flows, cfg.units)
+    for fld in cfg.design_flow_fields:
+        for r in net.reaches:
+            if fld not in r.attributes:
+                raise InputError(f"design-flow field {fld!r} is not a field of the streams",
+                                 f"fields are: {', '.join(map(str, r.attributes)) or 'none'}")
+            try:
+                v = float(r.attributes[fld])
+            except (TypeError, ValueError):
+                continue
+            if np.isfinite(v) and v >= 0:
+                v = v * FOOT ** 3 if cfg.units == "us" else v
+                shared.flows.setdefault(str(r.reach_id), {})[fld] = v
+    if cfg.observations:
+        shared.observations = tables.read_observations(cfg.observations, cfg.units)
+    if cfg.cowan:
+        shared.cowan = tables.read_cowan(cfg.cowan)
+    if cfg.landcover_table:
+        shared.class_table = tables.read_class_table(cfg.landcover_table)
+    known = {str(r.reach_id) for r in net.reaches}
+    for what, ids in (("design flows", shared.flows),
+                      ("observations", [] if shared.observations is None
+                       else shared.observations["reach_id"].unique()),
+                      ("Cowan terms", shared.cowan or {})):
+        unknown = sorted(set(map(str, ids)) - known)
+        if unknown:
+            raise InputError(f"{what} name reach id(s) {', '.join(unknown[:5])} that are not in the "
+                             "streams", f"reach ids are: {', '.join(sorted(known)[:10])}")
+    return shared
+
+
+def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
+                  neighbours=None, landcover=None) -> ReachOutput:
+    """The whole job for one reach. Never raises: a bad reach gets a status, an
+    unexpected error is caught and reported as ``failed``."""
+    t0 = time.perf_counter()
+    rid = str(reach.reach_id)
+    base = {"reach_id": rid, "name": reach.name or "", "status": reach.status,
+            "message": reach.message, "orientation": reach.orientation,
+            "reach_length": reach.length_m, "transects": 0, "transects_ok": 0}
+    if reach.status != "ok":
+        return ReachOutput(rid, None, base)
+    try:
+        rs = cutting.cut_reach(raster, reach, cfg, neighbours)
+        if rs.status != "ok" or len(rs.chainage) == 0:
+            base.update(status=rs.status, message=rs.message, transects=len(rs.chainage))
+            return ReachOutput(rid, None, base, seconds=time.perf_counter() - t0)
+        if landcover is not None and inputs.class_table:
+            from .landcover import classes_at
+
+            inputs.classes = classes_at(landcover, rs.sample_points(), raster.work_crs)
+        res = hydraulics.analyse_reach(rs, cfg, inputs)
+        return ReachOutput(rid, res, res.reach, transect_lines=list(rs.transects),
+                           thalweg_xy=np.asarray(rs.thalweg_xy), offsets=np.asarray(rs.offsets),
+                           seconds=time.perf_counter() - t0)
+    except InputError as exc:
+        base.update(status="bad-input", message=str(exc))
+        return ReachOutput(rid, None, base, seconds=time.perf_counter() - t0)
+    except Exception as exc:  # a bug: keep the batch going, report it
+        base.update(status="failed", message=f"{type(exc).__name__}: {exc}")
+        return ReachOutput(rid, None, base, error=traceback.format_exc(),
+                           seconds=time.perf_counter() - t0)
+
+
+def iterate(cfg: RunConfig, net, shared: SharedInputs, progress=None):
+    """Yield a :class:`ReachOutput` per reach as each finishes, on the executor
+    the config asks for: ``scheduler`` (Dask), ``jobs`` > 1 or 0 (process pool),
+    else serial."""
+    # other streams within reach of a transect, for the crossing checks
+    args = [(net.raster, r, cfg, shared.for_reach(r),
+             net.neighbours(r, 2.0 * max(cfg.half_width, r.half_width_m or 0.0)), cfg.landcover)
+            for r in net.reaches]
+    if cfg.scheduler:
+        try:
+            from dask.distributed import Client, as_completed
+        except ImportError:
+            raise InputError("--scheduler needs Dask distributed",
+                             "install reachgauge with the 'dask' extra: pip install 'reachgauge[dask]'"
+                             ) from None
+        try:
+            client = Client(cfg.scheduler, timeout="10s")
+        except (OSError, TimeoutError) as exc:
+            raise InputError(f"cannot reach the Dask scheduler at {cfg.scheduler} ({exc})",
+                             "check the address (tcp://host:port) and that the scheduler runs"
+                             ) from None
+        with client:
+            futures = [client.submit(process_reach, *a, pure=False) for a in args]
+            for fut in as_completed(futures):
+                yield fut.result()
+        return
+    jobs = cfg.jobs if cfg.jobs > 0 else (os.cpu_count() or 1)
+    if jobs > 1 and len(args) > 1:
+        import multiprocessing
+        from concurrent.futures import ProcessPoolExecutor, as_completed as done
+
+        ctx = multiprocessing.get_context("spawn")  # GDAL state must not be forked
+        with ProcessPoolExecutor(max_workers=min(jobs, len(args)), mp_context=ctx) as pool:
+            futures = [pool.submit(process_reach, *a) for a in args]
+            for fut in done(futures):
+                yield fut.result()
+        return
+    for a in args:
+        yield process_reach(*a)
+
+
+@dataclass
+class RunResult:
+    network: object
+    outputs: list
+    elapsed: float
+    warnings: list
+
+
+def compute(cfg: RunConfig, progress=None) -> RunResult:
+    """Load the network, run every reach, and return the outputs (SI, work CRS).
+
+    ``progress(output, done, total)`` is called after each reach.
+    """
+    t0 = time.perf_counter()
+    net = network_mod.load_network(cfg)
+    shared = read_shared_inputs(cfg, net)
+    outputs = []
+    total = len(net.reaches)
+    for out in iterate(cfg, net, shared):
+        outputs.append(out)
+        if progress:
+            progress(out, len(outputs), total)
+    order = {str(r.reach_id): i for i, r in enumerate(net.reaches)}
+    outputs.sort(key=lambda o: order.get(o.reach_id, 0))
+    return RunResult(net, outputs, time.perf_counter() - t0, list(net.warnings))
+
+
+def fingerprint(path) -> dict:
+    """Size, modification time and SHA-256 of the first MiB of a file, so a
+    result can be traced to its inputs without hashing a huge raster whole."""
+    import hashlib
+
+    p = Path(path)
+    if not p.is_file():
+        return {"path": str(p)}
+    with open(p, "rb") as f:
+        head = hashlib.sha256(f.read(1 << 20)).hexdigest()
+    st = p.stat()
+    return {"path": str(p.resolve()), "bytes": st.st_size,
+            "modified": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime(st.st_mtime)),
+            "sha256_first_mib": head}
+
+
+@dataclass
+class RunSummary:
+    """What the end-of-run summary prints."""
+
+    reaches: int
+    reaches_ok: int
+    transects: int
+    transects_ok: int
+    flagged: int
+    flag_counts: dict
+    statuses: dict
+    out_of_bank: list
+    failed: list
+    out: Path | None
+    report: Path | None
+    elapsed: float
+    warnings: list
+
+    def lines(self) -> list[str]:
+        out = [f"reaches:    {self.reaches_ok} of {self.reaches} processed"
+               + (f" ({', '.join(f'{v} {k}' for k, v in self.statuses.items())})"
+                  if self.statuses else ""),
+               f"transects:  {self.transects_ok} of {self.transects} with figures, "
+               f"{self.flagged} flagged"]
+        if self.flag_counts:
+            top = sorted(self.flag_counts.items(), key=lambda kv: -kv[1])[:6]
+            out.append("flags:      " + ", ".join(f"{k} {v}" for k, v in top))
+        if self.out_of_bank:
+            out.append("out of bank: " + "; ".join(self.out_of_bank))
+        if self.failed:
+            out.append("internal errors on: " + ", ".join(self.failed)
+                       + " (please report; run with --verbose for details)")
+        for w in self.warnings:
+            out.append(f"warning:    {w}")
+        if self.out:
+            out.append(f"result:     {self.out}")
+        if self.report:
+            out.append(f"report:     {self.report}")
+        out.append(f"time:       {self.elapsed:.1f} s")
+        return out
+
+
+def summarise(run: RunResult, out=None, report=None) -> RunSummary:
+    from collections import Counter
+
+    statuses = Counter(o.reach_row.get("status", "") for o in run.outputs)
+    flag_counts: Counter = Counter()
+    transects = transects_ok = flagged = 0
+    oob = []
+    for o in run.outputs:
+        if o.result is None:
+            transects += int(o.reach_row.get("transects", 0) or 0)
+            continue
+        tr = o.result.transects
+        transects += len(tr)
+        transects_ok += int((tr["status"] == "ok").sum())
+        flagged += int((tr["flags"] != "").sum())
+        for f in tr["flags"]:
+            flag_counts.update(x for x in f.split(";") if x)
+        if o.reach_row.get("flows_out"):
+            oob.append(f"{o.reach_id} ({o.reach_row['flows_out'].replace(';', ', ')})")
+    ok = statuses.pop("ok", 0)
+    return RunSummary(len(run.outputs), ok, transects, transects_ok, flagged, dict(flag_counts),
+                      dict(statuses), oob, [o.reach_id for o in run.outputs if o.error],
+                      out, report, run.elapsed, run.warnings)
+
+
+def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, report=None,
+                colour_by: str = "discharge", progress=None) -> RunSummary:
+    """The whole batch: compute every reach, write the GeoPackage (atomically),
+    optionally CSV copies of the tables and the HTML report."""
+    from . import outputs
+
+    outputs.check_target(out, overwrite)          # fail before the work, not after
+    if report is not None:
+        outputs.check_target(report, overwrite)
+    run = compute(cfg, progress)
+    layers = outputs.build_layers(run, cfg)
+    outputs.write_geopackage(out, layers, run.network.source_crs, overwrite=overwrite)
+    if csv_dir is not None:
+        outputs.write_csv_dir(csv_dir, layers, overwrite=overwrite)
+    if report is not None:
+        from .report import write_report
+
+        write_report(out, report, colour_by=colour_by, overwrite=overwrite)
+    return summarise(run, Path(out), None if report is None else Path(report))

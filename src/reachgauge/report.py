@@ -1,0 +1,789 @@
+"""The HTML report of a result GeoPackage (an output edge of the tool).
+
+One self-contained file that works offline: CSS inline, every figure a base64
+PNG in a ``data:`` URI, no script, no font, tile or link from the network (a
+Content-Security-Policy meta tag tells the browser to load nothing at all).
+Every string that came from the user's data (reach names and ids, messages,
+flow names, file paths, parameter values) goes through :func:`html.escape`.
+
+Contents: the cautions (:data:`reachgauge.notices.CAUTIONS`), the run summary,
+the flag and status codes that occur, a map of reaches and transects coloured by
+one numeric transect field, and per reach its summary figures, longitudinal
+profile, up to four cross-sections, rating curve and a table of its transects.
+
+Figures are drawn with matplotlib's Agg canvas on free-standing
+:class:`~matplotlib.figure.Figure` objects (no pyplot state, nothing to close).
+Values are shown in the run's own units, read from the ``run_info`` layer.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import io
+import json
+import math
+from collections import Counter
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from . import flags as flagcodes
+from . import schema
+from .errors import InputError
+from .notices import CAUTION_LINE, CAUTIONS
+
+# Sequential palette of our own ("sand to plum"): CIE L* falls steadily, 7 to 10.5 a
+# step from 87 to 14, so order reads without hue and survives any colour-vision
+# deficiency; the lightest stop stays visible on the white map.
+PALETTE = ("#f0d9a0", "#e8c283", "#dca86e", "#cc8c62", "#b3715f", "#925a64", "#6c4468", "#442f61",
+           "#251d4a")
+NO_VALUE = "#b9b3a8"     # transects without a value of the colour field
+INK = "#23201c"
+GROUND, EARTH = "#5a4a3a", "#ece3d3"
+WATER, WATER_EDGE = "#9ccbea", "#2c6fa6"
+RAW, CARVED = "#b7ab98", "#4a3b2e"
+FAINT = "#8fa9bd"
+# design flows: distinct dashes as well as colours, so they part without colour
+FLOW_STYLES = (("#b4471c", (0, (6, 2))), ("#6b3fa0", (0, (6, 2, 1, 2))),
+               ("#1d7368", (0, (1.5, 1.5))), ("#8a6a12", (0, (10, 2, 2, 2, 2, 2))))
+DPI = 110
+
+REQUIRED_LAYERS = ("transects", "reaches", "thalweg_points", "rating_curves", "design_checks",
+                   "profile", "sample_sections", "run_info")
+OPTIONAL_LAYERS = ("stage_figures", "calibration")
+TEXT_KINDS = ("text", "flag")
+
+
+# ================================================================ entry points
+def write_report(result_gpkg, out_html, *, colour_by: str = "discharge",
+                 overwrite: bool = False) -> Path:
+    """Read a result GeoPackage and write its HTML report to ``out_html``.
+
+    The file is written beside the target and renamed into place when done
+    (:class:`reachgauge.outputs.atomic_path`); an existing file is kept unless
+    ``overwrite``. Bad input (missing file, not a reachgauge result, unknown
+    ``colour_by``) is an :class:`~reachgauge.errors.InputError`.
+    """
+    from .outputs import atomic_path, check_target
+
+    out = check_target(out_html, overwrite)   # fail before the work, not after
+    src = Path(result_gpkg)
+    if src.exists() and out.exists() and out.resolve() == src.resolve():
+        raise InputError("the report would replace the result file itself",
+                         "give the report a path ending in .html")
+    text = render_report(read_result(src), colour_by)
+    with atomic_path(out, overwrite) as tmp:
+        tmp.write_text(text, encoding="utf-8")
+    return out
+
+
+def read_result(path) -> dict:
+    """Every layer of a result GeoPackage as a (Geo)DataFrame, by layer name."""
+    import pyogrio
+
+    p = Path(path)
+    fix = "give the GeoPackage written by 'reachgauge run'"
+    if not p.is_file():
+        raise InputError(f"result file {str(p)!r} does not exist", fix)
+    try:
+        names = {str(n) for n, _g in pyogrio.list_layers(p)}
+        missing = [n for n in REQUIRED_LAYERS if n not in names]
+        if missing:
+            raise InputError(f"{str(p)!r} is not a reachgauge result: layer(s) "
+                             f"{', '.join(missing)} missing", fix)
+        return {n: pyogrio.read_dataframe(p, layer=n)
+                for n in REQUIRED_LAYERS + OPTIONAL_LAYERS if n in names}
+    except (pyogrio.errors.DataSourceError, pyogrio.errors.DataLayerError, OSError) as exc:
+        raise InputError(f"{str(p)!r} cannot be read as a GeoPackage ({exc})", fix) from None
+
+
+def numeric_fields(transects: pd.DataFrame) -> list[str]:
+    """Transect fields that can colour the map: numeric, not boolean."""
+    return [c for c in transects.columns
+            if c != "geometry" and pd.api.types.is_numeric_dtype(transects[c])
+            and not pd.api.types.is_bool_dtype(transects[c])
+            and schema.TRANSECT_FIELDS.get(c, ("none",))[0] not in TEXT_KINDS]
+
+
+def render_report(layers: dict, colour_by: str = "discharge") -> str:
+    """The report as one HTML string. Pure: layers in (as :func:`read_result`
+    gives them), text out."""
+    lay = _prepare(layers)
+    fields = numeric_fields(lay["transects"])
+    if colour_by not in fields:
+        raise InputError(f"cannot colour the map by {colour_by!r}: not a numeric transect field",
+                         f"choose one of: {', '.join(fields)}")
+    info = _run_info(lay["run_info"])
+    reaches = lay["reaches"]
+    by = {name: dict(tuple(lay[name].groupby("reach_id", sort=False)))
+          for name in ("transects", "profile", "rating_curves", "design_checks", "sample_sections")}
+    body = [_header(info), _cautions(), _summary(lay, info), _code_table(lay),
+            _map(lay, colour_by, info), _contents(reaches, info)]
+    for i, row in enumerate(reaches.itertuples(index=False)):
+        own = {k: v.get(str(row.reach_id), lay[k].iloc[:0]) for k, v in by.items()}
+        body.append(_reach_section(i, row, own, info))
+    body.append(f"<footer><p>{_e(CAUTION_LINE)}</p></footer>")
+    return _page("".join(body))
+
+
+# ============================================================ input handling
+def _prepare(layers: dict) -> dict:
+    """Check the layers are a result's and normalise them: text as str without
+    nulls, reach_id as str, optional layers present."""
+    missing = [n for n in REQUIRED_LAYERS if n not in layers]
+    if missing:
+        raise InputError(f"not a reachgauge result: layer(s) {', '.join(missing)} missing",
+                         "give the GeoPackage written by 'reachgauge run'")
+    out = {}
+    for name in REQUIRED_LAYERS + OPTIONAL_LAYERS:
+        df = layers.get(name)
+        df = pd.DataFrame() if df is None else df.copy()
+        fields = schema.LAYERS.get(name, {})  # thalweg_points: only its geometry is drawn
+        for col, (kind, _m) in fields.items():
+            if col not in df.columns:
+                df[col] = pd.Series("" if kind == "text" else np.nan, index=df.index,
+                                    dtype=object if kind == "text" else float)
+            elif kind == "text":
+                df[col] = df[col].map(lambda v: "" if v is None or v is pd.NA or
+                                      (isinstance(v, float) and math.isnan(v)) else str(v))
+        out[name] = df
+    if not {"key", "value"} <= set(out["run_info"].columns):
+        raise InputError("not a reachgauge result: the run_info layer has no key/value columns",
+                         "give the GeoPackage written by 'reachgauge run'")
+    return out
+
+
+class _Info:
+    """What the report needs from the ``run_info`` key/value table."""
+
+    def __init__(self, rows: list[tuple[str, str]]):
+        kv = {}
+        self.warnings, self.params, self.versions, self.inputs = [], [], [], []
+        for k, v in rows:
+            if k == "warning":
+                self.warnings.append(v)
+            elif k.startswith("param."):
+                self.params.append((k[6:], v))
+            elif k.startswith("version."):
+                self.versions.append((k[8:], v))
+            elif k.startswith("input."):
+                fp = _json(v, None)
+                self.inputs.append((k[6:], fp if isinstance(fp, dict) else {"path": v}))
+            else:
+                kv[k] = v
+        self.kv = kv
+        self.units = kv.get("units", "si") if kv.get("units") in schema.UNIT_LABELS else "si"
+        labels = _json(kv.get("unit_labels", ""), None)
+        self.labels = labels if isinstance(labels, dict) else schema.UNIT_LABELS[self.units]
+        self.crs = kv.get("crs", "")
+
+    def unit(self, layer: str, field: str) -> str:
+        """Unit label of a field of a layer ('' when dimensionless or unknown)."""
+        kind = schema.LAYERS.get(layer, {}).get(field, ("none",))[0]
+        return str(self.labels.get(kind, ""))
+
+    def head(self, layer: str, field: str, title: str) -> str:
+        u = self.unit(layer, field)
+        return f"{title} ({u})" if u else title
+
+
+def _run_info(df: pd.DataFrame) -> _Info:
+    return _Info([(str(k), "" if v is None else str(v)) for k, v in zip(df["key"], df["value"])])
+
+
+def _json(text, default):
+    try:
+        return json.loads(text)
+    except (TypeError, ValueError):
+        return default
+
+
+# ============================================================ HTML pieces
+def _e(value) -> str:
+    """Escape any user-supplied value for HTML text or attribute."""
+    return html.escape("" if value is None else str(value), quote=True)
+
+
+def _num(v, places: int | None = None, sig: int = 3) -> str:
+    """A number for a table: fixed ``places`` decimals, else ``sig`` significant
+    digits; thousands separated; '–' for missing."""
+    try:
+        x = float(v)
+    except (TypeError, ValueError):
+        return "–"
+    if not math.isfinite(x):
+        return "–"
+    if places is not None:
+        return f"{x:,.{places}f}"
+    if abs(x) >= 10 ** sig:
+        return f"{x:,.0f}"
+    return f"{x:.{sig}g}"
+
+
+def _codes(text: str, vocabulary: dict) -> str:
+    parts = [c for c in str(text).split(";") if c]
+    return " ".join(f'<span class="code" title="{_e(vocabulary.get(c, ""))}">{_e(c)}</span>'
+                    for c in parts)
+
+
+def _table(head: list[str], rows: list[str], cls: str = "") -> str:
+    th = "".join(f"<th>{h}</th>" for h in head)
+    body = "".join(rows)
+    return f'<table class="{cls}"><thead><tr>{th}</tr></thead><tbody>{body}</tbody></table>'
+
+
+def _figure_html(uri: str, alt: str, caption: str = "") -> str:
+    cap = f"<figcaption>{caption}</figcaption>" if caption else ""
+    return f'<figure><img src="{uri}" alt="{_e(alt)}">{cap}</figure>'
+
+
+def _header(info: _Info) -> str:
+    created = _e(info.kv.get("created_utc", "unknown date"))
+    version = _e(info.kv.get("reachgauge_version", "?"))
+    system = "SI units" if info.units == "si" else "US customary units"
+    return (f'<header><h1>Reach report</h1><p class="sub">reachgauge {version} · '
+            f"run of {created} · values in {system}</p></header>")
+
+
+def _cautions() -> str:
+    items = "".join(f"<li>{_e(c)}</li>" for c in CAUTIONS)
+    return f'<section class="caution"><h2>Read this first</h2><ul>{items}</ul></section>'
+
+
+def _summary(lay: dict, info: _Info) -> str:
+    reaches, tr = lay["reaches"], lay["transects"]
+    status = Counter(reaches["status"])
+    ok_reaches = status.pop("ok", 0)
+    t_ok = int((tr["status"] == "ok").sum())
+    t_flagged = int((tr["flags"] != "").sum())
+    counts = Counter(c for f in tr["flags"] for c in f.split(";") if c)
+    top = ", ".join(f"{_e(k)} ({v})" for k, v in counts.most_common(6)) or "none"
+    others = "".join(f", {v} {_e(k)}" for k, v in status.items())
+    out_rows = [f"<li><b>{_e(r.reach_id)}</b>{' — ' + _e(r.name) if r.name else ''}: "
+                f"{_e(r.flows_out.replace(';', ', '))}</li>"
+                for r in reaches.itertuples(index=False) if r.flows_out]
+    oob = f"<ul>{''.join(out_rows)}</ul>" if out_rows else "none"
+    unit_text = ", ".join(f"{_e(k)} {_e(v)}" for k, v in info.labels.items())
+    inputs = "".join(
+        f"<tr><td>{_e(k)}</td><td class='path'>{_e(fp.get('path', ''))}</td>"
+        f"<td>{_e(_size(fp))}</td><td>{_e(fp.get('modified', ''))}</td>"
+        f"<td class='path'>{_e(str(fp.get('sha256_first_mib', ''))[:16])}</td></tr>"
+        for k, fp in info.inputs)
+    rows = [("Reaches", f"{len(reaches)} ({ok_reaches} processed{others})"),
+            ("Transects", f"{len(tr)}: {t_ok} with figures, {t_flagged} flagged"),
+            ("Most frequent flags", top),
+            ("Design flows out of bank", oob),
+            ("Units", f"{'SI' if info.units == 'si' else 'US customary'} — {unit_text}"),
+            ("CRS", f"<span class='path'>{_e(info.crs) or 'unknown'}</span>"),
+            ("Created (UTC)", _e(info.kv.get("created_utc", "")))]
+    if info.warnings:
+        rows.append(("Warnings", "<ul>" + "".join(f"<li>{_e(w)}</li>" for w in info.warnings)
+                     + "</ul>"))
+    dl = "".join(f"<dt>{k}</dt><dd>{v}</dd>" for k, v in rows)
+    inp = (_table(["input", "path", "size", "modified", "SHA-256 of first MiB"],
+                  [inputs], "small") if inputs else "<p>No input fingerprints recorded.</p>")
+    params = "".join(f"<tr><td>{_e(k)}</td><td class='path'>{_e(v)}</td></tr>"
+                     for k, v in info.params)
+    versions = ", ".join(f"{_e(k)} {_e(v)}" for k, v in info.versions)
+    return (f'<section class="panel"><h2>Run summary</h2><dl class="facts">{dl}</dl>'
+            f"<h3>Inputs</h3>{inp}<details><summary>Parameters of the run</summary>"
+            f"{_table(['parameter', 'value'], [params], 'small')}"
+            f"<p class='note'>Software: {versions or 'not recorded'}</p></details></section>")
+
+
+def _size(fp: dict) -> str:
+    """A file size from a fingerprint, in B, KiB, MiB or GiB."""
+    b = _f(fp.get("bytes"))
+    if not np.isfinite(b):
+        return ""
+    for unit in ("B", "KiB", "MiB", "GiB"):
+        if b < 1024 or unit == "GiB":
+            return f"{b:.0f} {unit}" if unit == "B" else f"{b:.1f} {unit}"
+        b /= 1024
+    return ""
+
+
+def _code_table(lay: dict) -> str:
+    """The status and flag codes that occur in this result, with their meanings."""
+    tr, reaches = lay["transects"], lay["reaches"]
+    seen = Counter(c for f in list(tr["flags"]) + list(reaches["slope_flags"])
+                   for c in f.split(";") if c)
+    rows = [f"<tr><td>flag</td><td><span class='code'>{_e(c)}</span></td><td>{n}</td>"
+            f"<td>{_e(flagcodes.FLAGS.get(c, 'not a known code'))}</td></tr>"
+            for c, n in sorted(seen.items())]
+    for kind, col, vocab in (("reach status", reaches["status"], flagcodes.REACH_STATUS),
+                             ("transect status", tr["status"], flagcodes.TRANSECT_STATUS)):
+        for c, n in sorted(Counter(x for x in col if x and x != "ok").items()):
+            rows.append(f"<tr><td>{kind}</td><td><span class='code'>{_e(c)}</span></td>"
+                        f"<td>{n}</td><td>{_e(vocab.get(c, 'not a known code'))}</td></tr>")
+    if not rows:
+        return ('<section class="panel"><h2>Codes in this result</h2>'
+                "<p>No flags and no failed items.</p></section>")
+    return ('<section class="panel"><h2>Codes in this result</h2>'
+            + _table(["kind", "code", "count", "meaning"], rows, "small") + "</section>")
+
+
+def _contents(reaches: pd.DataFrame, info: _Info) -> str:
+    items = []
+    for i, r in enumerate(reaches.itertuples(index=False)):
+        tag = "" if r.status == "ok" else f' <span class="code bad">{_e(r.status)}</span>'
+        q = (f" — Q<sub>bf</sub> {_num(r.discharge)} {_e(info.unit('reaches', 'discharge'))}"
+             if r.status == "ok" else "")
+        name = f" {_e(r.name)}" if r.name else ""
+        items.append(f'<li><a href="#reach-{i}"><b>{_e(r.reach_id)}</b>{name}</a>{tag}{q}</li>')
+    return f'<nav class="panel"><h2>Reaches</h2><ol class="toc">{"".join(items)}</ol></nav>'
+
+
+def _reach_section(i: int, r, parts: dict, info: _Info) -> str:
+    name = f" <span class='name'>{_e(r.name)}</span>" if r.name else ""
+    head = f'<section class="reach" id="reach-{i}"><h2>{_e(r.reach_id)}{name}</h2>'
+    if r.status != "ok":
+        meaning = flagcodes.REACH_STATUS.get(r.status, "not a known status")
+        msg = f"<p>Details: {_e(r.message)}</p>" if r.message else ""
+        return (f'{head}<div class="void-box"><p>No figures for this reach: status '
+                f"<span class='code bad'>{_e(r.status)}</span> — {_e(meaning)}.</p>{msg}</div>"
+                '<p class="top"><a href="#top">back to top</a></p></section>')
+    tr = parts["transects"].sort_values("station")
+    figs, rating_fig = [], ""
+    rating = parts["rating_curves"]
+    if len(rating):
+        rating_fig = _figure_html(_rating_png(rating, parts["design_checks"], r, info),
+                                  f"rating curve of reach {r.reach_id}",
+                                  "Rating curve: every transect faint, the reach median bold, "
+                                  "design flows as vertical lines.")
+    prof = parts["profile"]
+    if len(prof):
+        figs.append(_figure_html(_profile_png(prof, tr, info, str(r.reach_id)),
+                                 f"longitudinal profile of reach {r.reach_id}",
+                                 "Longitudinal profile: thalweg as sampled and after carving, "
+                                 "with each transect's bankfull stage."))
+    samples = parts["sample_sections"]
+    if len(samples):
+        figs.append(_figure_html(_sections_png(samples, tr, parts["design_checks"], info),
+                                 f"cross-sections of reach {r.reach_id}",
+                                 "Cross-sections looking downstream: ground, water at bankfull "
+                                 "stage between the banks (▼), design-flow stages as lines."))
+    if not figs and not rating_fig:
+        figs.append("<p>No transect of this reach has figures.</p>")
+    return (f'{head}<div class="pair"><div>{_reach_facts(r, info)}'
+            f"{_design_table(parts['design_checks'], info)}</div><div>{rating_fig}</div></div>"
+            f"{''.join(figs)}<h3>Transects</h3>{_transect_table(tr, info)}"
+            '<p class="top"><a href="#top">back to top</a></p></section>')
+
+
+def _reach_facts(r, info: _Info) -> str:
+    u = lambda f: _e(info.unit("reaches", f))  # noqa: E731
+    n_back = (f"; back-calculated {_num(r.n_calibrated, 3)}"
+              if np.isfinite(_f(r.n_calibrated)) else "")
+    ratio = (f" (largest design / bankfull ratio {_num(r.worst_ratio)})"
+             if np.isfinite(_f(r.worst_ratio)) else "")
+    rows = [
+        ("Length", f"{_num(r.reach_length, 0)} {u('length')}; {_num(r.transects, 0)} transects, "
+                   f"{_num(r.transects_ok, 0)} with figures, "
+                   f"{_num(r.transects_flagged, 0)} flagged"),
+        ("Slope", f"{_num(r.slope, sig=3)} {_codes(r.slope_flags, flagcodes.FLAGS)}"),
+        ("Bankfull depth (median)", f"{_num(r.bankfull_depth, 2)} {u('bankfull_depth')} "
+                                    f"(IQR {_num(r.depth_spread, 2)})"),
+        ("Top width (median)", f"{_num(r.top_width)} {u('top_width')}"),
+        ("Bankfull discharge (median)",
+         f"{_num(r.discharge)} {u('discharge')} "
+         f"(p25–p75 {_num(r.discharge_p25)}–{_num(r.discharge_p75)})"),
+        ("Velocity (median)", f"{_num(r.velocity)} {u('velocity')}"),
+        ("Manning's n",
+         f"{_num(r.n_channel, 3)} ({_e(r.n_source) or 'source not recorded'}){n_back}"),
+        ("Low-confidence / outlier transects",
+         f"{_num(r.confidence_low, 0)} / {_num(r.outliers, 0)}"),
+        ("Design flows out of bank", (_e(r.flows_out.replace(";", ", ")) or "none") + ratio),
+        ("Downstream direction", _e(r.orientation) or "–"),
+    ]
+    return '<dl class="facts">' + "".join(f"<dt>{k}</dt><dd>{v}</dd>" for k, v in rows) + "</dl>"
+
+
+def _f(v) -> float:
+    try:
+        return float(v)
+    except (TypeError, ValueError):
+        return float("nan")
+
+
+def _design_table(design: pd.DataFrame, info: _Info) -> str:
+    reach_rows = design[design["station"] == -1]
+    if not len(reach_rows):
+        return ""
+    rows = [f"<tr class='{'flagged' if _truthy(d.out_of_bank) else ''}'><td>{_e(d.flow)}</td>"
+            f"<td>{_num(d.discharge)}</td><td>{_num(d.q_ratio, 2)}</td>"
+            f"<td>{_num(100 * _f(d.share_out), 0)} %</td>"
+            f"<td>{'yes' if _truthy(d.out_of_bank) else 'no'}</td></tr>"
+            for d in reach_rows.itertuples(index=False)]
+    head = ["design flow", _e(info.head("design_checks", "discharge", "discharge")),
+            "design / bankfull", "transects out of bank", "leaves the channel"]
+    return "<h3>Design flows</h3>" + _table(head, rows, "small")
+
+
+def _truthy(v) -> bool:
+    if isinstance(v, str):
+        return v.strip().lower() in ("1", "true", "yes")
+    try:
+        return bool(v) and not (isinstance(v, float) and math.isnan(v))
+    except (TypeError, ValueError):
+        return False
+
+
+def _transect_table(tr: pd.DataFrame, info: _Info) -> str:
+    h = lambda f, t: _e(info.head("transects", f, t))  # noqa: E731
+    head = ["", "station", h("chainage", "chainage"), "status", "flags", "confidence",
+            h("bankfull_depth", "bankfull depth"), h("top_width", "top width"),
+            h("discharge", "discharge"), h("min_freeboard", "min freeboard")]
+    rows = []
+    for t in tr.itertuples(index=False):
+        bad = t.status != "ok"
+        cls = "void" if bad else ("flagged" if t.flags else "")
+        mark = "✕" if bad else ("!" if t.flags else "")
+        status = _codes(t.status, flagcodes.TRANSECT_STATUS) if bad else "ok"
+        rows.append(f"<tr class='{cls}'><td class='mark'>{mark}</td><td>{_num(t.station, 0)}</td>"
+                    f"<td>{_num(t.chainage, 1)}</td><td>{status}</td>"
+                    f"<td>{_codes(t.flags, flagcodes.FLAGS)}</td><td>{_e(t.confidence)}</td>"
+                    f"<td>{_num(t.bankfull_depth, 2)}</td><td>{_num(t.top_width)}</td>"
+                    f"<td>{_num(t.discharge)}</td><td>{_num(t.min_freeboard, 2)}</td></tr>")
+    return _table(head, rows, "transects")
+
+
+def _page(body: str) -> str:
+    csp = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
+    return ('<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
+            f'<meta http-equiv="Content-Security-Policy" content="{csp}">'
+            '<meta name="viewport" content="width=device-width, initial-scale=1">'
+            f"<title>reachgauge reach report</title><style>{_CSS}</style></head>"
+            f'<body><div id="top" class="page">{body}</div></body></html>\n')
+
+
+_CSS = """
+body{margin:0;background:#f6f3ee;color:#23201c;font:15px/1.45 system-ui,-apple-system,"Segoe UI",
+Roboto,"DejaVu Sans",sans-serif}
+.page{max-width:1180px;margin:0 auto;padding:18px 22px 40px}
+header{border-bottom:3px solid #604069;margin-bottom:14px}
+h1{font-size:28px;margin:6px 0 2px;color:#352c5a;letter-spacing:.02em}
+h2{font-size:20px;margin:0 0 10px;color:#352c5a}
+h3{font-size:16px;margin:16px 0 6px;color:#604069}
+.sub{margin:0 0 10px;color:#6d6358}
+.panel,.reach{background:#fff;border:1px solid #e2dacb;border-radius:6px;padding:14px 18px;
+margin:14px 0}
+.reach{border-top:5px solid #8b5569}
+.reach h2 .name{font-weight:400;color:#6d6358}
+.caution{background:#fff4df;border:1px solid #e3b176;border-left:8px solid #b4471c;
+border-radius:6px;padding:10px 18px;margin:14px 0}
+.caution h2{color:#7a2f10;margin-bottom:4px}.caution li{margin:3px 0}
+dl.facts{display:grid;grid-template-columns:max-content 1fr;gap:3px 16px;margin:0}
+dl.facts dt{font-weight:600;color:#4a3b2e}dl.facts dd{margin:0}
+dl.facts ul{margin:0;padding-left:18px}
+table{border-collapse:collapse;margin:6px 0 10px;font-size:13.5px}
+th{background:#efe7da;text-align:left;padding:4px 8px;border-bottom:2px solid #d6c9b3}
+td{padding:3px 8px;border-bottom:1px solid #eee6d9;vertical-align:top}
+table.transects td:nth-child(n+7),table.transects td:nth-child(2),table.transects td:nth-child(3)
+{text-align:right;font-variant-numeric:tabular-nums}
+tr.flagged td{background:#fbecd9}tr.flagged td.mark{color:#b4471c;font-weight:700;
+border-left:4px solid #d08e63}
+tr.void td{background:#efece7;color:#7a7166}tr.void td.mark{color:#604069;font-weight:700;
+border-left:4px solid #8b5569}
+.code{font-family:ui-monospace,"DejaVu Sans Mono",monospace;font-size:12.5px;background:#f3eee6;
+border:1px solid #e2dacb;border-radius:3px;padding:0 4px;white-space:nowrap}
+.code.bad{background:#f1e4ee;border-color:#b58aa8;color:#4b2347}
+.path{font-family:ui-monospace,"DejaVu Sans Mono",monospace;font-size:12.5px;word-break:break-all}
+.pair{display:grid;grid-template-columns:minmax(0,1fr) minmax(0,1fr);gap:18px;align-items:start}
+@media (max-width:900px){.pair{grid-template-columns:1fr}}
+figure{margin:12px 0}figure img{max-width:100%;height:auto;border:1px solid #eee6d9}
+figcaption{font-size:13px;color:#6d6358}
+ol.toc{columns:2;margin:0;padding-left:22px}ol.toc li{margin:2px 0;break-inside:avoid}
+a{color:#604069}.top{font-size:12.5px;text-align:right;margin:4px 0 0}
+.void-box{background:#f6f0f4;border-left:5px solid #8b5569;padding:6px 12px}
+details{margin-top:8px}summary{cursor:pointer;color:#604069}.note{font-size:12.5px;color:#6d6358}
+footer{font-size:12.5px;color:#6d6358;border-top:1px solid #d6c9b3;margin-top:20px}
+"""
+
+
+# ================================================================= figures
+def _new_figure(width: float, height: float, margins: dict | None = None):
+    """A figure on an Agg canvas. With ``margins`` (subplot parameters in
+    figure fractions) the layout is fixed, which is several times faster to
+    draw than the constrained layout used otherwise."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width, height), layout=None if margins else "constrained")
+    if margins:
+        fig.subplots_adjust(**margins)
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def _png(fig) -> str:
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=DPI, metadata={"Software": None}, facecolor="white")
+    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
+
+
+def colour_map():
+    """The report's sequential colour map (:data:`PALETTE`, light to dark)."""
+    from matplotlib.colors import LinearSegmentedColormap
+
+    return LinearSegmentedColormap.from_list("reachgauge_sand_plum", PALETTE).with_extremes(
+        bad=NO_VALUE)
+
+
+def line_parts(geoms) -> tuple[list, np.ndarray]:
+    """Vertex arrays of every LineString part of ``geoms`` (Multi parts split)
+    and the index of the geometry each part came from."""
+    import shapely
+
+    arr = np.asarray(geoms, dtype=object)
+    parts, src = shapely.get_parts(arr, return_index=True)
+    keep = ~shapely.is_empty(parts)
+    parts, src = parts[keep], src[keep]
+    if not len(parts):
+        return [], src
+    coords, cidx = shapely.get_coordinates(parts, return_index=True)
+    return np.split(coords, np.flatnonzero(np.diff(cidx)) + 1), src
+
+
+def scale_length(span: float) -> float:
+    """A round scale-bar length (1, 2 or 5 × 10^k) between a tenth and a
+    quarter of the map span, or the nearest such below a quarter."""
+    if not (span > 0 and math.isfinite(span)):
+        return 0.0
+    target = span / 4.0
+    k = math.floor(math.log10(target))
+    if 10.0 ** k > target:  # log10 rounded up at an exact power of ten
+        k -= 1
+    return max(m * 10.0 ** k for m in (1, 2, 5) if m * 10.0 ** k <= target)
+
+
+def _crs_unit(crs_text: str) -> tuple[str, bool]:
+    """(short label of the CRS's horizontal unit, is geographic)."""
+    try:
+        from pyproj import CRS
+
+        crs = CRS.from_user_input(crs_text)
+        name = crs.axis_info[0].unit_name if crs.axis_info else ""
+        short = {"metre": "m", "meter": "m", "foot": "ft", "US survey foot": "US ft",
+                 "degree": "°"}.get(name, name or "map units")
+        return short, bool(crs.is_geographic)
+    except Exception:  # unparseable or empty CRS: the map still draws
+        return "map units", False
+
+
+def _map(lay: dict, colour_by: str, info: _Info) -> str:
+    from matplotlib.cm import ScalarMappable
+    from matplotlib.collections import LineCollection
+    from matplotlib.colors import Normalize
+
+    reaches, tr, pts = lay["reaches"], lay["transects"], lay["thalweg_points"]
+    r_geoms = reaches["geometry"].values if "geometry" in reaches else []
+    r_lines, _ = line_parts(r_geoms)
+    t_lines, t_src = line_parts(tr["geometry"].values if "geometry" in tr else [])
+    if not r_lines and not t_lines:
+        return '<section class="panel"><h2>Map</h2><p>No geometry to draw.</p></section>'
+    unit, geographic = _crs_unit(info.crs)
+    allxy = np.concatenate(r_lines + t_lines)
+    span = np.ptp(allxy, axis=0)
+    aspect = span[1] / span[0] if span[0] > 0 else 1.0
+    fig = _new_figure(9.5, float(np.clip(8.0 * aspect, 4.0, 9.0)) + 0.6)
+    ax = fig.add_subplot()
+    cmap = colour_map()
+    values = pd.to_numeric(tr[colour_by], errors="coerce").to_numpy(float)[t_src]
+    finite = np.isfinite(values)
+    lo, hi = (float(values[finite].min()), float(values[finite].max())) if finite.any() else (0, 1)
+    norm = Normalize(lo, hi if hi > lo else lo + (abs(lo) or 1.0) * 1e-6)
+    if (~finite).any():
+        ax.add_collection(LineCollection([t_lines[j] for j in np.flatnonzero(~finite)],
+                                         colors=NO_VALUE, linewidths=0.8, linestyles=(0, (2, 2)),
+                                         zorder=1))
+    if finite.any():
+        ax.add_collection(LineCollection([t_lines[j] for j in np.flatnonzero(finite)],
+                                         array=values[finite], cmap=cmap, norm=norm,
+                                         linewidths=2.0, zorder=2))
+    if r_lines:
+        ax.add_collection(LineCollection(r_lines, colors=INK, linewidths=1.2, zorder=3))
+    if "geometry" in pts and len(pts):
+        import shapely
+
+        xy = shapely.get_coordinates(np.asarray(pts["geometry"].values, dtype=object))
+        ax.scatter(xy[:, 0], xy[:, 1], s=2.5, c=INK, linewidths=0, zorder=4)
+    size = 8 if len(reaches) <= 20 else 6
+    for r, geom in zip(reaches["reach_id"], r_geoms):
+        if geom is not None and not geom.is_empty:
+            p = geom.interpolate(0.5, normalized=True)
+            ax.text(p.x, p.y, f" {r}", fontsize=size, color=INK, parse_math=False, zorder=5,
+                    bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.75))
+    ax.set_aspect("equal", adjustable="box")
+    ax.autoscale_view()
+    ax.ticklabel_format(useOffset=False, style="plain")
+    ax.tick_params(labelsize=8)
+    ax.set_xlabel("longitude (°)" if geographic else f"easting ({unit})")
+    ax.set_ylabel("latitude (°)" if geographic else f"northing ({unit})")
+    if not geographic:
+        _scale_bar(ax, unit)
+    field_unit = info.unit("transects", colour_by)
+    label = f"{colour_by} ({field_unit})" if field_unit else colour_by
+    if finite.any():
+        fig.colorbar(ScalarMappable(norm, cmap), ax=ax, shrink=0.85, label=label)
+    uri = _png(fig)
+    missing = int((~finite).sum())
+    note = f"; {missing} transect(s) without a value drawn grey, dashed" if missing else ""
+    cap = (f"Reaches (dark lines, labelled by id), transects coloured by <b>{_e(label)}</b>, "
+           f"thalweg points as dots; axes in map units of the result's CRS{note}.")
+    return f'<section class="panel"><h2>Map</h2>{_figure_html(uri, "map", cap)}</section>'
+
+
+def _scale_bar(ax, unit: str) -> None:
+    x0, x1 = ax.get_xlim()
+    y0, y1 = ax.get_ylim()
+    length = scale_length(x1 - x0)
+    if length <= 0:
+        return
+    x, y = x0 + 0.04 * (x1 - x0), y0 + 0.05 * (y1 - y0)
+    ax.plot([x, x + length], [y, y], color=INK, lw=3, solid_capstyle="butt", zorder=6)
+    ax.text(x + length / 2, y + 0.015 * (y1 - y0), f"{length:g} {unit}", ha="center",
+            va="bottom", fontsize=8, color=INK, zorder=6,
+            bbox=dict(boxstyle="round,pad=0.1", fc="white", ec="none", alpha=0.8))
+
+
+def _profile_png(prof: pd.DataFrame, tr: pd.DataFrame, info: _Info, rid: str) -> str:
+    prof = prof.sort_values("chainage")
+    ch = prof["chainage"].to_numpy(float)
+    fig = _new_figure(9.5, 3.2, dict(left=0.08, right=0.985, bottom=0.15, top=0.9))
+    ax = fig.add_subplot()
+    ax.plot(ch, prof["z_raw"].to_numpy(float), color=RAW, lw=1.0, label="thalweg as sampled")
+    ax.plot(ch, prof["z_carved"].to_numpy(float), color=CARVED, lw=2.0, label="thalweg carved")
+    used = prof["z_used"].to_numpy(float)
+    if not np.allclose(used, prof["z_carved"].to_numpy(float), equal_nan=True):
+        ax.plot(ch, used, color=CARVED, lw=1.0, ls=(0, (1, 1.5)), label="slope fitted to")
+    conf = tr["confidence"].to_numpy(str)
+    for low, style in ((False, dict(facecolors=WATER_EDGE)), (True, dict(facecolors="white"))):
+        sel = (conf == "low") == low
+        if sel.any():
+            ax.scatter(tr["chainage"].to_numpy(float)[sel],
+                       tr["bankfull_stage"].to_numpy(float)[sel], s=22, marker="v",
+                       edgecolors=WATER_EDGE, linewidths=1.0, zorder=3,
+                       label="bankfull stage (low confidence)" if low else "bankfull stage",
+                       **style)
+    ax.set_xlabel(info.head("profile", "chainage", "chainage from upstream end"))
+    ax.set_ylabel(info.head("profile", "z_raw", "elevation"))
+    ax.set_title(f"reach {rid}", fontsize=10, loc="left", parse_math=False)
+    ax.grid(color="#e6dfd3", lw=0.6)
+    ax.legend(fontsize=8, frameon=True, framealpha=0.85, ncols=2, loc="best")
+    return _png(fig)
+
+
+def _sections_png(samples: pd.DataFrame, tr: pd.DataFrame, design: pd.DataFrame,
+                  info: _Info) -> str:
+    stations = sorted(pd.unique(samples["station"]))[:4]
+    cols = 2 if len(stations) > 1 else 1
+    rows = (len(stations) + 1) // 2
+    h = 3.0 * rows
+    fig = _new_figure(9.5 if cols == 2 else 5.5, h,
+                      dict(left=0.075 * (2 if cols == 1 else 1), right=0.985, wspace=0.22,
+                           bottom=0.42 / h, top=1 - 0.3 / h, hspace=0.75 / 3.0))
+    tr_by = tr.set_index(tr["station"].astype(int))
+    des = design[design["station"] >= 0]
+    flows = list(pd.unique(design["flow"]))
+    for k, s in enumerate(stations):
+        ax = fig.add_subplot(rows, cols, k + 1)
+        g = samples[samples["station"] == s].sort_values("offset")
+        x, z = g["offset"].to_numpy(float), g["elevation"].to_numpy(float)
+        bottom = np.nanmin(z) - 0.15 * max(np.nanmax(z) - np.nanmin(z), 1e-3)
+        ax.fill_between(x, z, bottom, color=EARTH, lw=0)
+        ax.plot(x, z, color=GROUND, lw=1.4)
+        t = tr_by.loc[int(s)] if int(s) in tr_by.index else None
+        stage = _f(t["bankfull_stage"]) if t is not None else float("nan")
+        if np.isfinite(stage):
+            bl, br = _f(t["bank_left"]), _f(t["bank_right"])
+            inside = ((x >= bl) & (x <= br)) if np.isfinite(bl) and np.isfinite(br) \
+                else np.ones_like(x, bool)
+            ax.fill_between(x, z, stage, where=inside & (z < stage), interpolate=True, color=WATER,
+                            lw=0)
+            ax.plot([bl, br], [stage, stage], color=WATER_EDGE, lw=1.0)
+            ax.plot([bl, br], [stage, stage], ls="none", marker="v", ms=7, color=WATER_EDGE)
+        mine = des[des["station"] == s]
+        beyond = []
+        for j, flow in enumerate(flows):
+            d = mine[mine["flow"] == flow]
+            fs = _f(d["stage"].iloc[0]) if len(d) else float("nan")
+            if np.isfinite(fs):
+                c, dash = FLOW_STYLES[j % len(FLOW_STYLES)]
+                ax.axhline(fs, color=c, ls=dash, lw=1.3)
+            elif len(d) and _truthy(d["over_profile"].iloc[0]):
+                beyond.append(str(flow))
+        if beyond:  # no stage to draw: the flow overtops the ends of the transect
+            ax.text(0.99, 0.97, "over the profile: " + ", ".join(beyond), transform=ax.transAxes,
+                    ha="right", va="top", fontsize=7, color=FLOW_STYLES[0][0], parse_math=False,
+                    bbox=dict(boxstyle="round,pad=0.2", fc="white", ec="none", alpha=0.85))
+        ch = _num(t["chainage"], 1) if t is not None else "–"
+        ax.set_title(f"station {int(s)} · chainage {ch} {info.unit('transects', 'chainage')}",
+                     fontsize=9, loc="left", parse_math=False)
+        ax.set_xlabel(info.head("sample_sections", "offset", "offset from left end"), fontsize=8)
+        ax.set_ylabel(info.head("sample_sections", "elevation", "elevation"), fontsize=8)
+        ax.tick_params(labelsize=7.5)
+        ax.set_ylim(bottom=bottom)
+        ax.grid(color="#eee7dc", lw=0.5)
+    _legend(fig.axes[0], _section_key(flows), "upper center")
+    return _png(fig)
+
+
+def _section_key(flows) -> list:
+    """Legend entries for every section of a reach, so that a flow drawn only on
+    a later section is still named."""
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    keys = [Line2D([], [], color=GROUND, lw=1.4, label="ground"),
+            Patch(color=WATER, label="bankfull"),
+            Line2D([], [], color=WATER_EDGE, ls="none", marker="v", ms=7, label="bank")]
+    for j, flow in enumerate(flows):
+        c, dash = FLOW_STYLES[j % len(FLOW_STYLES)]
+        keys.append(Line2D([], [], color=c, ls=dash, lw=1.3, label=str(flow)))
+    return keys
+
+
+def _legend(ax, handles=None, loc: str = "best") -> None:
+    # user flow names go into a legend: keep matplotlib from reading '$' as mathtext
+    leg = ax.legend(handles=handles, fontsize=7, frameon=True, framealpha=0.85, loc=loc)
+    for text in leg.get_texts():
+        text.set_parse_math(False)
+
+
+def _rating_png(rating: pd.DataFrame, design: pd.DataFrame, r, info: _Info) -> str:
+    from matplotlib.collections import LineCollection
+
+    fig = _new_figure(6.4, 3.8, dict(left=0.12, right=0.97, bottom=0.13, top=0.92))
+    ax = fig.add_subplot()
+    per = rating[rating["station"] >= 0].sort_values(["station", "depth"])
+    if len(per):
+        xy = per[["discharge", "depth"]].to_numpy(float)
+        st = per["station"].to_numpy()
+        ax.add_collection(LineCollection(np.split(xy, np.flatnonzero(np.diff(st)) + 1),
+                                         colors=FAINT, linewidths=0.8, alpha=0.45,
+                                         label="transects"))
+    med = rating[rating["station"] == -1].sort_values("depth")
+    if len(med):
+        ax.plot(med["discharge"].to_numpy(float), med["depth"].to_numpy(float), color="#1f3b57",
+                lw=2.4, label="reach median")
+    if np.isfinite(_f(r.discharge)) and np.isfinite(_f(r.bankfull_depth)):
+        ax.plot([_f(r.discharge)], [_f(r.bankfull_depth)], marker="D", ms=6, color=WATER_EDGE,
+                ls="none", label="median bankfull")
+    flows = design.drop_duplicates("flow")
+    for j, d in enumerate(flows.itertuples(index=False)):
+        q = _f(d.discharge)
+        if np.isfinite(q):
+            c, dash = FLOW_STYLES[j % len(FLOW_STYLES)]
+            ax.axvline(q, color=c, ls=dash, lw=1.3, label=str(d.flow))
+    ax.autoscale_view()
+    ax.set_xlim(left=0)
+    ax.set_ylim(bottom=0)
+    ax.set_xlabel(info.head("rating_curves", "discharge", "discharge"))
+    ax.set_ylabel(info.head("rating_curves", "depth", "depth above thalweg"))
+    ax.set_title(f"reach {r.reach_id}", fontsize=10, loc="left", parse_math=False)
+    ax.grid(color="#e6dfd3", lw=0.6)
+    _legend(ax, loc="lower right")
+    return _png(fig)

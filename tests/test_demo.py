@@ -1,0 +1,62 @@
+"""`reachgauge demo` on the bundled basin: the whole job, and the figures the README
+quotes against the generator's truth (sample_data/basin/truth.json).
+
+The truth is our own invented channel geometry, so this is a regression check of
+the demo and of the README's claims, not an external reference.
+"""
+
+import json
+import re
+from pathlib import Path
+
+import numpy as np
+import pyogrio
+import pytest
+
+from reachgauge.cli import main
+
+BASIN = Path(__file__).resolve().parents[1] / "sample_data" / "basin"
+pytestmark = [pytest.mark.slow, pytest.mark.filterwarnings("ignore::RuntimeWarning")]
+
+
+def _blank(v):
+    """An empty text field as GDAL returns it: '' or null."""
+    return v is None or v == "" or (isinstance(v, float) and np.isnan(v))
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    out = tmp_path_factory.mktemp("demo")
+    assert main(["demo", "--out", str(out), "--quiet"]) == 0
+    return out
+
+
+def test_demo_writes_result_and_report(demo):
+    gpkg, html = demo / "demo_result.gpkg", demo / "demo_report.html"
+    assert gpkg.is_file() and html.is_file()
+    reaches = pyogrio.read_dataframe(gpkg, layer="reaches")
+    assert sorted(reaches.reach_id) == ["M1", "M2", "M3", "N1", "S1"]
+    assert (reaches.status == "ok").all()
+    text = html.read_text()
+    for rid in reaches.reach_id:
+        assert f">{rid}<" in text
+    assert not re.search(r"(src|href)\s*=\s*[\"']?(https?:)?//", text)
+
+
+def test_demo_matches_the_truth_the_readme_quotes(demo):
+    truth = json.loads((BASIN / "truth.json").read_text())["reaches"]
+    r = pyogrio.read_dataframe(demo / "demo_result.gpkg", layer="reaches").set_index("reach_id")
+    for rid, t in truth.items():
+        assert r.loc[rid, "bankfull_depth"] == pytest.approx(t["bank_height"], abs=0.03)
+        assert r.loc[rid, "flow_area"] == pytest.approx(t["bankfull_area"], rel=0.07)
+        assert 0 < r.loc[rid, "top_width"] - t["bankfull_width"] < 3.5
+        assert r.loc[rid, "slope"] == pytest.approx(t["channel_slope"], rel=0.1)
+    # the designed story: the main stem's q10 and q100 leave the channel, q2 stays in;
+    # the tributaries carry every design flow in bank
+    for rid in ("M1", "M2", "M3"):
+        assert r.loc[rid, "flows_out"] == "q10;q100"
+    for rid in ("N1", "S1"):
+        assert _blank(r.loc[rid, "flows_out"])
+    cal = pyogrio.read_dataframe(demo / "demo_result.gpkg", layer="calibration")
+    n_true = json.loads((BASIN / "truth.json").read_text())["n_observations"]
+    assert np.all(np.abs(cal.n_back / n_true - 1) < 0.2)
