@@ -66,40 +66,32 @@ def unit_system(units: str) -> UnitSystem:
         ) from None
 
 
+def _check(value, ok, problem, fix):
+    """Return ``value`` as a float array, or raise naming the first bad element."""
+    a = np.asarray(value, dtype=float)
+    good = np.isfinite(a) & ok(a)
+    if not np.all(good):
+        raise InputError(problem.format(bad=a[~good].ravel()[0]), fix)
+    return a
+
+
 def check_slope(slope):
     """Validate a slope: finite and > 0 (dimensionless)."""
-    s = np.asarray(slope, dtype=float)
-    if not np.all(np.isfinite(s)) or np.any(s <= 0):
-        bad = s[~(np.isfinite(s) & (s > 0))].ravel()[0]
-        raise InputError(
-            f"slope must be a finite number greater than 0, got {bad:g}",
-            "give the absolute gradient as a decimal (e.g. 0.002 for 2 m per km)",
-        )
-    return s
+    return _check(slope, lambda a: a > 0, "slope must be a finite number greater than 0, got {bad:g}",
+                  "give the absolute gradient as a decimal (e.g. 0.002 for 2 m per km)")
 
 
 def check_n(n):
     """Validate Manning's n: finite and > 0 (s/m^(1/3))."""
-    a = np.asarray(n, dtype=float)
-    if not np.all(np.isfinite(a)) or np.any(a <= 0):
-        bad = a[~(np.isfinite(a) & (a > 0))].ravel()[0]
-        raise InputError(
-            f"Manning's n must be a finite number greater than 0, got {bad:g}",
-            "natural channels usually lie between 0.025 and 0.15",
-        )
-    return a
+    return _check(n, lambda a: a > 0,
+                  "Manning's n must be a finite number greater than 0, got {bad:g}",
+                  "natural channels usually lie between 0.025 and 0.15")
 
 
 def check_discharge(q):
     """Validate a discharge: finite and >= 0."""
-    a = np.asarray(q, dtype=float)
-    if not np.all(np.isfinite(a)) or np.any(a < 0):
-        bad = a[~(np.isfinite(a) & (a >= 0))].ravel()[0]
-        raise InputError(
-            f"discharge must be a finite number of 0 or more, got {bad:g}",
-            "give the flow rate in m³/s (SI) or ft³/s (US)",
-        )
-    return a
+    return _check(q, lambda a: a >= 0, "discharge must be a finite number of 0 or more, got {bad:g}",
+                  "give the flow rate in m³/s (SI) or ft³/s (US)")
 
 
 def velocity(hydraulic_radius, slope, n, units="si"):

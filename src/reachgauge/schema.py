@@ -123,6 +123,17 @@ STAGE_FIELDS = {
     "shear": ("stress", "mean boundary shear stress"),
 }
 
+SECTION_FIELDS = {  # `reachgauge section --rating` table
+    **{k: RATING_FIELDS[k] for k in ("stage", "depth", "flow_area", "perimeter", "top_width",
+                                      "hyd_radius")},
+    "hyd_depth": ("length", "hydraulic depth, area / top width"),
+    **{k: RATING_FIELDS[k] for k in ("velocity", "discharge")},
+    "froude": ("none", "Froude number on hydraulic depth"),
+    "shear": ("stress", "mean boundary shear stress, gamma R S"),
+    "stream_power": ("power", "unit stream power, gamma Q S / top width"),
+    "spills": RATING_FIELDS["spills"],
+}
+
 DESIGN_FIELDS = {
     "reach_id": ("text", "reach identifier"),
     "station": ("count", "transect number; -1 for the reach summary row"),

@@ -120,11 +120,11 @@ def run(args) -> int:
         nn = n_used if np.ndim(n_used) == 0 else "/".join(f"{v:g}" for v in n_used)
         lines.append(f"Manning's n        {nn}")
     fig = hydraulics.figures(cs, stage, args.slope, n_used, args.units).iloc[0]
-    rows = [("area", fig.area, u.area), ("wetted perimeter", fig.wetted_perimeter, u.length),
-            ("top width", fig.top_width, u.length), ("hydraulic radius", fig.hydraulic_radius, u.length),
-            ("hydraulic depth", fig.hydraulic_depth, u.length), ("velocity", fig.velocity, u.velocity),
+    rows = [("area", fig.flow_area, u.area), ("wetted perimeter", fig.perimeter, u.length),
+            ("top width", fig.top_width, u.length), ("hydraulic radius", fig.hyd_radius, u.length),
+            ("hydraulic depth", fig.hyd_depth, u.length), ("velocity", fig.velocity, u.velocity),
             ("discharge", fig.discharge, u.discharge), ("Froude number", fig.froude, ""),
-            ("shear stress", fig.shear_stress, u.stress), ("stream power", fig.stream_power, u.power)]
+            ("shear stress", fig.shear, u.stress), ("stream power", fig.stream_power, u.power)]
     for name, val, unit in rows:
         lines.append(f"{name:<19}{val:.4g} {unit}".rstrip())
     if args.banks:
