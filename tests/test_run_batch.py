@@ -266,3 +266,13 @@ def test_readme_documents_every_code():
 
     readme = (Path(__file__).resolve().parents[1] / "README.md").read_text()
     assert flags.markdown() in readme, "README code tables are stale: paste flags.markdown()"
+
+
+def test_n_outside_published_range_is_refused_unless_forced(valley, tmp_path, capsys):
+    # 0.3 lies outside every row of Chow (1959) Table 5-6 (max 0.200) and the hard limit 0.25
+    code, _, err = run(base_args(valley, tmp_path / "a.gpkg") + ["--n", "0.3"], capsys)
+    assert code == 2 and "--force-n" in err
+    code, _, err = run(base_args(valley, tmp_path / "b.gpkg") + ["--n", "0.3", "--force-n"], capsys)
+    assert code == 0 and "warning:" in err
+    tr = pyogrio.read_dataframe(tmp_path / "b.gpkg", layer="transects")
+    assert "n-unusual" in ";".join(tr["flags"])

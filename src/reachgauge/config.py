@@ -17,7 +17,9 @@ import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .errors import InputError
+import warnings
+
+from .errors import InputError, ReachgaugeWarning
 from .manning import FOOT
 
 
@@ -216,6 +218,13 @@ def validate(cfg: RunConfig) -> None:
     if (cfg.landcover is None) != (cfg.landcover_table is None):
         raise InputError("landcover and landcover-table go together",
                          "give both the land-cover raster and its class-to-n CSV")
+    from .roughness import check_n_range  # published ranges of n (Chow 1959, Table 5-6)
+
+    for name in ("n", "n_overbank"):
+        v = getattr(cfg, name)
+        if v is not None:
+            for note in check_n_range(v, force=cfg.force_n, where=name.replace("_", "-")):
+                warnings.warn(note, ReachgaugeWarning, stacklevel=3)
     if cfg.jobs < 0:
         raise InputError("jobs must be 0 (one per core) or more", "give --jobs N")
 

@@ -309,7 +309,9 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
         min_fb[i] = fb if not np.isfinite(min_fb[i]) else min(min_fb[i], fb)
         if row["out_of_bank"]:
             out_names[i].append(row["flow"])
-            tflags[i].append("over-profile" if row["over_profile"] else "out-of-bank")
+            tflags[i].append("out-of-bank")
+        if row["over_profile"]:
+            tflags[i].append("over-profile")
     tr["min_freeboard"] = np.where(np.isneginf(min_fb), np.nan, min_fb)
     tr["flows_out"] = [";".join(v) for v in out_names]
     tr["flags"] = [flags.join(f) for f in tflags]

@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from . import cutting, hydraulics, network as network_mod, tables
+from . import cutting, hydraulics, network as network_mod, roughness, tables
 from .config import RunConfig
 from .errors import InputError
 from .manning import FOOT
@@ -79,6 +79,13 @@ def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:
         shared.cowan = tables.read_cowan(cfg.cowan)
     if cfg.landcover_table:
         shared.class_table = tables.read_class_table(cfg.landcover_table)
+        for cls, n in shared.class_table.items():
+            roughness.warn_all(roughness.check_n_range(n, force=cfg.force_n,
+                                              where=f"n of land-cover class {cls}"))
+    for rid, t in (shared.cowan or {}).items():
+        n = roughness.cowan_n(t["base"], t["irregularity"], t["variation"], t["obstruction"],
+                              t["vegetation"], t["meander"])
+        roughness.warn_all(roughness.check_n_range(n, force=cfg.force_n, where=f"Cowan n of reach {rid}"))
     known = {str(r.reach_id) for r in net.reaches}
     for what, ids in (("design flows", shared.flows),
                       ("observations", [] if shared.observations is None

@@ -112,7 +112,8 @@ def check_n_range(n, *, force: bool = False, where: str = "Manning's n") -> list
         raise InputError(
             f"{where} = {out[0]:g} is outside {lo:g}–{hi:g}, the range of published values for "
             "channels and flood plains",
-            "check the value (a typo such as 0.3 for 0.03?) or force it if you mean it")
+            "check the value (a typo such as 0.3 for 0.03?), or pass --force-n "
+            "(force_n = true) if you mean it")
     notes = []
     tlo, thi = TABLE_RANGE
     odd = np.unique(arr[(arr < tlo) | (arr > thi)])
