@@ -8,7 +8,6 @@ from __future__ import annotations
 import argparse
 import sys
 import warnings
-from pathlib import Path
 
 from . import __version__
 from .errors import InputError, ReachgaugeWarning

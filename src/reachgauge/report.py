@@ -18,9 +18,7 @@ Values are shown in the run's own units, read from the ``run_info`` layer.
 
 from __future__ import annotations
 
-import base64
 import html
-import io
 import json
 import math
 from collections import Counter
@@ -33,22 +31,10 @@ from . import flags as flagcodes
 from . import schema
 from .errors import InputError
 from .notices import CAUTION_LINE, CAUTIONS
+from .report_figures import (DPI, INK, NO_VALUE, PALETTE, _crs_unit, _f, _new_figure, _num,  # noqa: F401
+                             _png, _profile_png, _rating_png, _scale_bar, _sections_png, _truthy,
+                             colour_map, line_parts, scale_length)
 
-# Sequential palette of our own ("sand to plum"): CIE L* falls steadily, 7 to 10.5 a
-# step from 87 to 14, so order reads without hue and survives any colour-vision
-# deficiency; the lightest stop stays visible on the white map.
-PALETTE = ("#f0d9a0", "#e8c283", "#dca86e", "#cc8c62", "#b3715f", "#925a64", "#6c4468", "#442f61",
-           "#251d4a")
-NO_VALUE = "#b9b3a8"     # transects without a value of the colour field
-INK = "#23201c"
-GROUND, EARTH = "#5a4a3a", "#ece3d3"
-WATER, WATER_EDGE = "#9ccbea", "#2c6fa6"
-RAW, CARVED = "#b7ab98", "#4a3b2e"
-FAINT = "#8fa9bd"
-# design flows: distinct dashes as well as colours, so they part without colour
-FLOW_STYLES = (("#b4471c", (0, (6, 2))), ("#6b3fa0", (0, (6, 2, 1, 2))),
-               ("#1d7368", (0, (1.5, 1.5))), ("#8a6a12", (0, (10, 2, 2, 2, 2, 2))))
-DPI = 110
 
 REQUIRED_LAYERS = ("transects", "reaches", "thalweg_points", "rating_curves", "design_checks",
                    "profile", "sample_sections", "run_info")
@@ -204,22 +190,6 @@ def _json(text, default):
 def _e(value) -> str:
     """Escape any user-supplied value for HTML text or attribute."""
     return html.escape("" if value is None else str(value), quote=True)
-
-
-def _num(v, places: int | None = None, sig: int = 3) -> str:
-    """A number for a table: fixed ``places`` decimals, else ``sig`` significant
-    digits; thousands separated; '–' for missing."""
-    try:
-        x = float(v)
-    except (TypeError, ValueError):
-        return "–"
-    if not math.isfinite(x):
-        return "–"
-    if places is not None:
-        return f"{x:,.{places}f}"
-    if abs(x) >= 10 ** sig:
-        return f"{x:,.0f}"
-    return f"{x:.{sig}g}"
 
 
 def _codes(text: str, vocabulary: dict) -> str:
@@ -401,13 +371,6 @@ def _reach_facts(r, info: _Info) -> str:
     return '<dl class="facts">' + "".join(f"<dt>{k}</dt><dd>{v}</dd>" for k, v in rows) + "</dl>"
 
 
-def _f(v) -> float:
-    try:
-        return float(v)
-    except (TypeError, ValueError):
-        return float("nan")
-
-
 def _design_table(design: pd.DataFrame, info: _Info) -> str:
     reach_rows = design[design["station"] == -1]
     if not len(reach_rows):
@@ -420,15 +383,6 @@ def _design_table(design: pd.DataFrame, info: _Info) -> str:
     head = ["design flow", _e(info.head("design_checks", "discharge", "discharge")),
             "design / bankfull", "transects out of bank", "leaves the channel"]
     return "<h3>Design flows</h3>" + _table(head, rows, "small")
-
-
-def _truthy(v) -> bool:
-    if isinstance(v, str):
-        return v.strip().lower() in ("1", "true", "yes")
-    try:
-        return bool(v) and not (isinstance(v, float) and math.isnan(v))
-    except (TypeError, ValueError):
-        return False
 
 
 def _transect_table(tr: pd.DataFrame, info: _Info) -> str:
@@ -504,75 +458,6 @@ footer{font-size:12.5px;color:#6d6358;border-top:1px solid #d6c9b3;margin-top:20
 
 
 # ================================================================= figures
-def _new_figure(width: float, height: float, margins: dict | None = None):
-    """A figure on an Agg canvas. With ``margins`` (subplot parameters in
-    figure fractions) the layout is fixed, which is several times faster to
-    draw than the constrained layout used otherwise."""
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(width, height), layout=None if margins else "constrained")
-    if margins:
-        fig.subplots_adjust(**margins)
-    FigureCanvasAgg(fig)
-    return fig
-
-
-def _png(fig) -> str:
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=DPI, metadata={"Software": None}, facecolor="white")
-    return "data:image/png;base64," + base64.b64encode(buf.getvalue()).decode("ascii")
-
-
-def colour_map():
-    """The report's sequential colour map (:data:`PALETTE`, light to dark)."""
-    from matplotlib.colors import LinearSegmentedColormap
-
-    return LinearSegmentedColormap.from_list("reachgauge_sand_plum", PALETTE).with_extremes(
-        bad=NO_VALUE)
-
-
-def line_parts(geoms) -> tuple[list, np.ndarray]:
-    """Vertex arrays of every LineString part of ``geoms`` (Multi parts split)
-    and the index of the geometry each part came from."""
-    import shapely
-
-    arr = np.asarray(geoms, dtype=object)
-    parts, src = shapely.get_parts(arr, return_index=True)
-    keep = ~shapely.is_empty(parts)
-    parts, src = parts[keep], src[keep]
-    if not len(parts):
-        return [], src
-    coords, cidx = shapely.get_coordinates(parts, return_index=True)
-    return np.split(coords, np.flatnonzero(np.diff(cidx)) + 1), src
-
-
-def scale_length(span: float) -> float:
-    """A round scale-bar length (1, 2 or 5 × 10^k) between a tenth and a
-    quarter of the map span, or the nearest such below a quarter."""
-    if not (span > 0 and math.isfinite(span)):
-        return 0.0
-    target = span / 4.0
-    k = math.floor(math.log10(target))
-    if 10.0 ** k > target:  # log10 rounded up at an exact power of ten
-        k -= 1
-    return max(m * 10.0 ** k for m in (1, 2, 5) if m * 10.0 ** k <= target)
-
-
-def _crs_unit(crs_text: str) -> tuple[str, bool]:
-    """(short label of the CRS's horizontal unit, is geographic)."""
-    try:
-        from pyproj import CRS
-
-        crs = CRS.from_user_input(crs_text)
-        name = crs.axis_info[0].unit_name if crs.axis_info else ""
-        short = {"metre": "m", "meter": "m", "foot": "ft", "US survey foot": "US ft",
-                 "degree": "°"}.get(name, name or "map units")
-        return short, bool(crs.is_geographic)
-    except Exception:  # unparseable or empty CRS: the map still draws
-        return "map units", False
-
-
 def _map(lay: dict, colour_by: str, info: _Info) -> str:
     from matplotlib.cm import ScalarMappable
     from matplotlib.collections import LineCollection
@@ -635,155 +520,3 @@ def _map(lay: dict, colour_by: str, info: _Info) -> str:
            f"thalweg points as dots; axes in map units of the result's CRS{note}.")
     return f'<section class="panel"><h2>Map</h2>{_figure_html(uri, "map", cap)}</section>'
 
-
-def _scale_bar(ax, unit: str) -> None:
-    x0, x1 = ax.get_xlim()
-    y0, y1 = ax.get_ylim()
-    length = scale_length(x1 - x0)
-    if length <= 0:
-        return
-    x, y = x0 + 0.04 * (x1 - x0), y0 + 0.05 * (y1 - y0)
-    ax.plot([x, x + length], [y, y], color=INK, lw=3, solid_capstyle="butt", zorder=6)
-    ax.text(x + length / 2, y + 0.015 * (y1 - y0), f"{length:g} {unit}", ha="center",
-            va="bottom", fontsize=8, color=INK, zorder=6,
-            bbox=dict(boxstyle="round,pad=0.1", fc="white", ec="none", alpha=0.8))
-
-
-def _profile_png(prof: pd.DataFrame, tr: pd.DataFrame, info: _Info, rid: str) -> str:
-    prof = prof.sort_values("chainage")
-    ch = prof["chainage"].to_numpy(float)
-    fig = _new_figure(9.5, 3.2, dict(left=0.08, right=0.985, bottom=0.15, top=0.9))
-    ax = fig.add_subplot()
-    ax.plot(ch, prof["z_raw"].to_numpy(float), color=RAW, lw=1.0, label="thalweg as sampled")
-    ax.plot(ch, prof["z_carved"].to_numpy(float), color=CARVED, lw=2.0, label="thalweg carved")
-    used = prof["z_used"].to_numpy(float)
-    if not np.allclose(used, prof["z_carved"].to_numpy(float), equal_nan=True):
-        ax.plot(ch, used, color=CARVED, lw=1.0, ls=(0, (1, 1.5)), label="slope fitted to")
-    conf = tr["confidence"].to_numpy(str)
-    for low, style in ((False, dict(facecolors=WATER_EDGE)), (True, dict(facecolors="white"))):
-        sel = (conf == "low") == low
-        if sel.any():
-            ax.scatter(tr["chainage"].to_numpy(float)[sel],
-                       tr["bankfull_stage"].to_numpy(float)[sel], s=22, marker="v",
-                       edgecolors=WATER_EDGE, linewidths=1.0, zorder=3,
-                       label="bankfull stage (low confidence)" if low else "bankfull stage",
-                       **style)
-    ax.set_xlabel(info.head("profile", "chainage", "chainage from upstream end"))
-    ax.set_ylabel(info.head("profile", "z_raw", "elevation"))
-    ax.set_title(f"reach {rid}", fontsize=10, loc="left", parse_math=False)
-    ax.grid(color="#e6dfd3", lw=0.6)
-    ax.legend(fontsize=8, frameon=True, framealpha=0.85, ncols=2, loc="best")
-    return _png(fig)
-
-
-def _sections_png(samples: pd.DataFrame, tr: pd.DataFrame, design: pd.DataFrame,
-                  info: _Info) -> str:
-    stations = sorted(pd.unique(samples["station"]))[:4]
-    cols = 2 if len(stations) > 1 else 1
-    rows = (len(stations) + 1) // 2
-    h = 3.0 * rows
-    fig = _new_figure(9.5 if cols == 2 else 5.5, h,
-                      dict(left=0.075 * (2 if cols == 1 else 1), right=0.985, wspace=0.22,
-                           bottom=0.42 / h, top=1 - 0.3 / h, hspace=0.75 / 3.0))
-    tr_by = tr.set_index(tr["station"].astype(int))
-    des = design[design["station"] >= 0]
-    flows = list(pd.unique(design["flow"]))
-    for k, s in enumerate(stations):
-        ax = fig.add_subplot(rows, cols, k + 1)
-        g = samples[samples["station"] == s].sort_values("offset")
-        x, z = g["offset"].to_numpy(float), g["elevation"].to_numpy(float)
-        bottom = np.nanmin(z) - 0.15 * max(np.nanmax(z) - np.nanmin(z), 1e-3)
-        ax.fill_between(x, z, bottom, color=EARTH, lw=0)
-        ax.plot(x, z, color=GROUND, lw=1.4)
-        t = tr_by.loc[int(s)] if int(s) in tr_by.index else None
-        stage = _f(t["bankfull_stage"]) if t is not None else float("nan")
-        if np.isfinite(stage):
-            bl, br = _f(t["bank_left"]), _f(t["bank_right"])
-            inside = ((x >= bl) & (x <= br)) if np.isfinite(bl) and np.isfinite(br) \
-                else np.ones_like(x, bool)
-            ax.fill_between(x, z, stage, where=inside & (z < stage), interpolate=True, color=WATER,
-                            lw=0)
-            ax.plot([bl, br], [stage, stage], color=WATER_EDGE, lw=1.0)
-            ax.plot([bl, br], [stage, stage], ls="none", marker="v", ms=7, color=WATER_EDGE)
-        mine = des[des["station"] == s]
-        beyond = []
-        for j, flow in enumerate(flows):
-            d = mine[mine["flow"] == flow]
-            fs = _f(d["stage"].iloc[0]) if len(d) else float("nan")
-            if np.isfinite(fs):
-                c, dash = FLOW_STYLES[j % len(FLOW_STYLES)]
-                ax.axhline(fs, color=c, ls=dash, lw=1.3)
-            elif len(d) and _truthy(d["over_profile"].iloc[0]):
-                beyond.append(str(flow))
-        if beyond:  # no stage to draw: the flow overtops the ends of the transect
-            ax.text(0.99, 0.97, "over the profile: " + ", ".join(beyond), transform=ax.transAxes,
-                    ha="right", va="top", fontsize=7, color=FLOW_STYLES[0][0], parse_math=False,
-                    bbox=dict(boxstyle="round,pad=0.2", fc="white", ec="none", alpha=0.85))
-        ch = _num(t["chainage"], 1) if t is not None else "–"
-        ax.set_title(f"station {int(s)} · chainage {ch} {info.unit('transects', 'chainage')}",
-                     fontsize=9, loc="left", parse_math=False)
-        ax.set_xlabel(info.head("sample_sections", "offset", "offset from left end"), fontsize=8)
-        ax.set_ylabel(info.head("sample_sections", "elevation", "elevation"), fontsize=8)
-        ax.tick_params(labelsize=7.5)
-        ax.set_ylim(bottom=bottom)
-        ax.grid(color="#eee7dc", lw=0.5)
-    _legend(fig.axes[0], _section_key(flows), "upper center")
-    return _png(fig)
-
-
-def _section_key(flows) -> list:
-    """Legend entries for every section of a reach, so that a flow drawn only on
-    a later section is still named."""
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch
-
-    keys = [Line2D([], [], color=GROUND, lw=1.4, label="ground"),
-            Patch(color=WATER, label="bankfull"),
-            Line2D([], [], color=WATER_EDGE, ls="none", marker="v", ms=7, label="bank")]
-    for j, flow in enumerate(flows):
-        c, dash = FLOW_STYLES[j % len(FLOW_STYLES)]
-        keys.append(Line2D([], [], color=c, ls=dash, lw=1.3, label=str(flow)))
-    return keys
-
-
-def _legend(ax, handles=None, loc: str = "best") -> None:
-    # user flow names go into a legend: keep matplotlib from reading '$' as mathtext
-    leg = ax.legend(handles=handles, fontsize=7, frameon=True, framealpha=0.85, loc=loc)
-    for text in leg.get_texts():
-        text.set_parse_math(False)
-
-
-def _rating_png(rating: pd.DataFrame, design: pd.DataFrame, r, info: _Info) -> str:
-    from matplotlib.collections import LineCollection
-
-    fig = _new_figure(6.4, 3.8, dict(left=0.12, right=0.97, bottom=0.13, top=0.92))
-    ax = fig.add_subplot()
-    per = rating[rating["station"] >= 0].sort_values(["station", "depth"])
-    if len(per):
-        xy = per[["discharge", "depth"]].to_numpy(float)
-        st = per["station"].to_numpy()
-        ax.add_collection(LineCollection(np.split(xy, np.flatnonzero(np.diff(st)) + 1),
-                                         colors=FAINT, linewidths=0.8, alpha=0.45,
-                                         label="transects"))
-    med = rating[rating["station"] == -1].sort_values("depth")
-    if len(med):
-        ax.plot(med["discharge"].to_numpy(float), med["depth"].to_numpy(float), color="#1f3b57",
-                lw=2.4, label="reach median")
-    if np.isfinite(_f(r.discharge)) and np.isfinite(_f(r.bankfull_depth)):
-        ax.plot([_f(r.discharge)], [_f(r.bankfull_depth)], marker="D", ms=6, color=WATER_EDGE,
-                ls="none", label="median bankfull")
-    flows = design.drop_duplicates("flow")
-    for j, d in enumerate(flows.itertuples(index=False)):
-        q = _f(d.discharge)
-        if np.isfinite(q):
-            c, dash = FLOW_STYLES[j % len(FLOW_STYLES)]
-            ax.axvline(q, color=c, ls=dash, lw=1.3, label=str(d.flow))
-    ax.autoscale_view()
-    ax.set_xlim(left=0)
-    ax.set_ylim(bottom=0)
-    ax.set_xlabel(info.head("rating_curves", "discharge", "discharge"))
-    ax.set_ylabel(info.head("rating_curves", "depth", "depth above thalweg"))
-    ax.set_title(f"reach {r.reach_id}", fontsize=10, loc="left", parse_math=False)
-    ax.grid(color="#e6dfd3", lw=0.6)
-    _legend(ax, loc="lower right")
-    return _png(fig)
