@@ -257,15 +257,16 @@ def test_readme_documents_every_option_and_field():
     from reachgauge import config
 
     readme = (Path(__file__).resolve().parents[1] / "README.md").read_text()
-    assert schema.markdown() in readme, "README field tables are stale: paste schema.markdown()"
-    assert config.markdown() in readme, "README option tables are stale: paste config.markdown()"
+    hint = "README tables are stale: run .venv/bin/python tests/update_readme.py"
+    assert schema.markdown() in readme, hint
+    assert config.markdown() in readme, hint
 
 
 def test_readme_documents_every_code():
     from reachgauge import flags
 
     readme = (Path(__file__).resolve().parents[1] / "README.md").read_text()
-    assert flags.markdown() in readme, "README code tables are stale: paste flags.markdown()"
+    assert flags.markdown() in readme, "README tables are stale: run tests/update_readme.py"
 
 
 def test_n_outside_published_range_is_refused_unless_forced(valley, tmp_path, capsys):

@@ -134,7 +134,9 @@ def test_transects_on_a_tight_bend_no_longer_cross_after_cutting(radius, spacing
     i, j = i[i < j], j[i < j]
     if hw > radius:   # on the inside of the bend (left) transects meet near the centre
         assert lim.shortened.any()
-        assert np.all(lim.left <= radius * 1.0001)
+        # interior stations (the end ones have one-sided tangents, so their rays may
+        # pass just beside the centre without meeting a neighbour)
+        assert np.all(lim.left[1:-1] <= radius * 1.0001)
     # a crossing that remains is one neither transect could avoid: both flagged
     assert np.all(lim.crossing[i] & lim.crossing[j])
     if hw < radius:   # no transect reaches the centre of the bend: nothing to cut

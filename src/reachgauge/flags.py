@@ -54,6 +54,16 @@ FLAGS = {
 }
 
 
+# results of the design-flow checks, not doubts about the section
+CAPACITY_FLAGS = frozenset({"out-of-bank", "over-profile"})
+
+
+def has_quality_flag(text) -> bool:
+    """True when a ';'-joined flag string holds a flag other than the
+    design-flow results of :data:`CAPACITY_FLAGS`."""
+    return any(c and c not in CAPACITY_FLAGS for c in str(text or "").split(";"))
+
+
 def join(codes) -> str:
     """Join flag codes (any iterable, duplicates and blanks dropped) as 'a;b'."""
     seen = []

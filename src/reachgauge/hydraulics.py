@@ -322,7 +322,7 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
     reach_row = {
         "reach_id": rid, "name": reach.name or "", "status": rs.status, "message": rs.message,
         "orientation": reach.orientation, "reach_length": reach.length_m, "transects": t,
-        "transects_ok": int(ok.sum()), "transects_flagged": int(sum(bool(f) for f in tr["flags"])),
+        "transects_ok": int(ok.sum()), "transects_flagged": int(sum(flags.has_quality_flag(f) for f in tr["flags"])),
         "slope": rs.reach_slope, "slope_flags": getattr(rs, "slope_flags", ""),
         "bankfull_depth": summary.median_depth, "depth_spread": summary.iqr,
         "top_width": _nanmedian(geo.top_width[ok]), "flow_area": _nanmedian(geo.area[ok]),

@@ -224,6 +224,7 @@ class RunSummary:
     transects: int
     transects_ok: int
     flagged: int
+    out_of_bank_transects: int
     flag_counts: dict
     statuses: dict
     out_of_bank: list
@@ -238,7 +239,8 @@ class RunSummary:
                + (f" ({', '.join(f'{v} {k}' for k, v in self.statuses.items())})"
                   if self.statuses else ""),
                f"transects:  {self.transects_ok} of {self.transects} with figures, "
-               f"{self.flagged} flagged"]
+               f"{self.flagged} flagged for a look, {self.out_of_bank_transects} where a design "
+               "flow leaves the channel"]
         if self.flag_counts:
             top = sorted(self.flag_counts.items(), key=lambda kv: -kv[1])[:6]
             out.append("flags:      " + ", ".join(f"{k} {v}" for k, v in top))
@@ -262,7 +264,7 @@ def summarise(run: RunResult, out=None, report=None) -> RunSummary:
 
     statuses = Counter(o.reach_row.get("status", "") for o in run.outputs)
     flag_counts: Counter = Counter()
-    transects = transects_ok = flagged = 0
+    transects = transects_ok = flagged = oob_t = 0
     oob = []
     for o in run.outputs:
         if o.result is None:
@@ -271,13 +273,16 @@ def summarise(run: RunResult, out=None, report=None) -> RunSummary:
         tr = o.result.transects
         transects += len(tr)
         transects_ok += int((tr["status"] == "ok").sum())
-        flagged += int((tr["flags"] != "").sum())
+        from .flags import has_quality_flag
+
+        flagged += int(sum(has_quality_flag(f) for f in tr["flags"]))
+        oob_t += int((tr["flows_out"] != "").sum())
         for f in tr["flags"]:
             flag_counts.update(x for x in f.split(";") if x)
         if o.reach_row.get("flows_out"):
             oob.append(f"{o.reach_id} ({o.reach_row['flows_out'].replace(';', ', ')})")
     ok = statuses.pop("ok", 0)
-    return RunSummary(len(run.outputs), ok, transects, transects_ok, flagged, dict(flag_counts),
+    return RunSummary(len(run.outputs), ok, transects, transects_ok, flagged, oob_t, dict(flag_counts),
                       dict(statuses), oob, [o.reach_id for o in run.outputs if o.error],
                       out, report, run.elapsed, run.warnings)
 

@@ -227,7 +227,7 @@ def _summary(lay: dict, info: _Info) -> str:
     status = Counter(reaches["status"])
     ok_reaches = status.pop("ok", 0)
     t_ok = int((tr["status"] == "ok").sum())
-    t_flagged = int((tr["flags"] != "").sum())
+    t_flagged = int(sum(flagcodes.has_quality_flag(f) for f in tr["flags"]))
     counts = Counter(c for f in tr["flags"] for c in f.split(";") if c)
     top = ", ".join(f"{_e(k)} ({v})" for k, v in counts.most_common(6)) or "none"
     others = "".join(f", {v} {_e(k)}" for k, v in status.items())
@@ -242,7 +242,7 @@ def _summary(lay: dict, info: _Info) -> str:
         f"<td class='path'>{_e(str(fp.get('sha256_first_mib', ''))[:16])}</td></tr>"
         for k, fp in info.inputs)
     rows = [("Reaches", f"{len(reaches)} ({ok_reaches} processed{others})"),
-            ("Transects", f"{len(tr)}: {t_ok} with figures, {t_flagged} flagged"),
+            ("Transects", f"{len(tr)}: {t_ok} with figures, {t_flagged} flagged for a look"),
             ("Most frequent flags", top),
             ("Design flows out of bank", oob),
             ("Units", f"{'SI' if info.units == 'si' else 'US customary'} — {unit_text}"),

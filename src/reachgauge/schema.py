@@ -77,7 +77,7 @@ REACH_FIELDS = {
     "reach_length": ("length", "centreline length"),
     "transects": ("count", "transects cut"),
     "transects_ok": ("count", "transects with figures"),
-    "transects_flagged": ("count", "transects with at least one flag"),
+    "transects_flagged": ("count", "transects with a flag other than the design-flow results"),
     "slope": ("none", "reach slope (fit over the whole reach)"),
     "slope_flags": ("text", "flags of the slope estimate"),
     "bankfull_depth": ("length", "median bankfull depth of the transects"),
