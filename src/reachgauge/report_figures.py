@@ -180,7 +180,7 @@ def _sections_png(samples: pd.DataFrame, tr: pd.DataFrame, design: pd.DataFrame,
     h = 3.0 * rows
     fig = _new_figure(9.5 if cols == 2 else 5.5, h,
                       dict(left=0.075 * (2 if cols == 1 else 1), right=0.985, wspace=0.22,
-                           bottom=0.42 / h, top=1 - 0.3 / h, hspace=0.75 / 3.0))
+                           bottom=0.42 / h, top=1 - 0.62 / h, hspace=0.75 / 3.0))
     tr_by = tr.set_index(tr["station"].astype(int))
     des = design[design["station"] >= 0]
     flows = list(pd.unique(design["flow"]))
@@ -223,7 +223,12 @@ def _sections_png(samples: pd.DataFrame, tr: pd.DataFrame, design: pd.DataFrame,
         ax.tick_params(labelsize=7.5)
         ax.set_ylim(bottom=bottom)
         ax.grid(color="#eee7dc", lw=0.5)
-    _legend(fig.axes[0], _section_key(flows), "upper center")
+    # one key for all sections, above them, where it hides no ground
+    handles = _section_key(flows)
+    leg = fig.legend(handles=handles, loc="upper center", ncol=min(len(handles), 7), fontsize=7.5,
+                     frameon=False)
+    for text in leg.get_texts():
+        text.set_parse_math(False)
     return _png(fig)
 
 
