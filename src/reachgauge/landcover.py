@@ -1,25 +1,25 @@
 """Land-cover classes at transect sample points (an input edge).
 
 Classes are categorical, so they are read by nearest pixel, never
-interpolated. A land-cover raster in another CRS than the working one is read
-through a warped view (rasterio.vrt.WarpedVRT, nearest resampling). Only the
-window around the points is read.
+interpolated. Points in another CRS than the raster's are transformed into it
+with pyproj (exact per point; resampling a categorical grid into the working CRS
+would shift class edges by up to a pixel). Only the window around the points is
+read.
 """
 
 from __future__ import annotations
 
 import numpy as np
 import rasterio
-from rasterio.enums import Resampling
-from rasterio.vrt import WarpedVRT
+from pyproj import CRS, Transformer
 from rasterio.windows import Window
 
 from .errors import InputError
 
 
 def classes_at(path, xy, work_crs) -> np.ndarray:
-    """Integer classes at points ``xy`` (..., 2) in ``work_crs``; -1 where the
-    point is outside the raster or on nodata."""
+    """Integer classes at points ``xy`` (..., 2) given in ``work_crs``; -1 where
+    the point is outside the raster or on nodata."""
     xy = np.asarray(xy, dtype=float)
     out = np.full(xy.shape[:-1], -1, dtype=np.int64)
     try:
@@ -31,27 +31,25 @@ def classes_at(path, xy, work_crs) -> np.ndarray:
         if src.crs is None:
             raise InputError(f"land-cover raster {str(path)!r} has no CRS",
                              "assign one (e.g. gdal_edit.py -a_srs) or reproject it")
-        ds = src if src.crs == work_crs else WarpedVRT(src, crs=work_crs,
-                                                       resampling=Resampling.nearest)
-        try:
-            pts = xy.reshape(-1, 2)
-            fin = np.all(np.isfinite(pts), axis=1)
-            if not fin.any():
-                return out
-            inv = ~ds.transform
-            col, row = inv * (pts[:, 0], pts[:, 1])
-            col = np.floor(np.asarray(col)).astype(np.int64)
-            row = np.floor(np.asarray(row)).astype(np.int64)
-            inside = fin & (col >= 0) & (col < ds.width) & (row >= 0) & (row < ds.height)
-            if not inside.any():
-                return out
-            c0, c1 = col[inside].min(), col[inside].max() + 1
-            r0, r1 = row[inside].min(), row[inside].max() + 1
-            band = ds.read(1, window=Window(c0, r0, c1 - c0, r1 - r0), masked=True)
-            vals = np.ma.filled(band.astype(np.int64), -1)
-            flat = out.reshape(-1)
-            flat[inside] = vals[row[inside] - r0, col[inside] - c0]
-        finally:
-            if ds is not src:
-                ds.close()
+        pts = xy.reshape(-1, 2)
+        fin = np.all(np.isfinite(pts), axis=1)
+        if not fin.any():
+            return out
+        px, py = pts[:, 0].copy(), pts[:, 1].copy()
+        if CRS.from_user_input(work_crs) != CRS.from_user_input(src.crs):
+            tr = Transformer.from_crs(CRS.from_user_input(work_crs), CRS.from_user_input(src.crs),
+                                      always_xy=True)
+            px[fin], py[fin] = tr.transform(px[fin], py[fin])
+        row, col = rasterio.transform.rowcol(src.transform, np.where(fin, px, 0.0),
+                                             np.where(fin, py, 0.0), op=np.floor)
+        row, col = np.asarray(row, dtype=np.int64), np.asarray(col, dtype=np.int64)
+        inside = fin & (col >= 0) & (col < src.width) & (row >= 0) & (row < src.height)
+        if not inside.any():
+            return out
+        c0, c1 = col[inside].min(), col[inside].max() + 1
+        r0, r1 = row[inside].min(), row[inside].max() + 1
+        band = src.read(1, window=Window(c0, r0, c1 - c0, r1 - r0), masked=True)
+        vals = np.ma.filled(band.astype(np.int64), -1)
+        flat = out.reshape(-1)
+        flat[inside] = vals[row[inside] - r0, col[inside] - c0]
     return out
