@@ -5,7 +5,7 @@ Reference: rasterio's own ``DatasetReader.sample`` (pixel containing the point).
 
 import numpy as np
 import rasterio
-from rasterio.transform import from_origin
+from affine import Affine
 
 from reachgauge.landcover import classes_at
 
@@ -14,7 +14,7 @@ def write_classes(path, crs="EPSG:32633"):
     data = (np.arange(40 * 30).reshape(30, 40) % 7 + 1).astype("uint8")
     data[0, 0] = 0
     with rasterio.open(path, "w", driver="GTiff", width=40, height=30, count=1, dtype="uint8",
-                       crs=crs, transform=from_origin(500000, 5000300, 10, 10), nodata=0) as ds:
+                       crs=crs, transform=Affine(10.0, 0.0, 500000.0, 0.0, -10.0, 5000300.0), nodata=0) as ds:
         ds.write(data, 1)
     return path
 
