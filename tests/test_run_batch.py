@@ -277,3 +277,31 @@ def test_n_outside_published_range_is_refused_unless_forced(valley, tmp_path, ca
     assert code == 0 and "warning:" in err
     tr = pyogrio.read_dataframe(tmp_path / "b.gpkg", layer="transects")
     assert "n-unusual" in ";".join(tr["flags"])
+
+
+@pytest.mark.parametrize("extra,msg", [
+    (["--n-field", "manning"], "n-field 'manning' is not a field"),
+    (["--landcover", "missing.tif", "--landcover-table", "missing.csv"], "does not exist"),
+])
+def test_run_level_input_errors_stop_before_the_work(valley, tmp_path, capsys, extra, msg):
+    code, _, err = run(base_args(valley, tmp_path / "r.gpkg") + extra, capsys)
+    assert code == 2 and msg in err and not (tmp_path / "r.gpkg").exists()
+
+
+def test_an_internal_error_in_one_reach_exits_1_and_keeps_the_rest(valley, tmp_path, capsys,
+                                                                   monkeypatch):
+    from reachgauge import hydraulics
+
+    real = hydraulics.analyse_reach
+
+    def broken(rs, cfg, inputs=None):
+        if rs.reach.reach_id == "A":
+            raise RuntimeError("simulated bug")
+        return real(rs, cfg, inputs)
+
+    monkeypatch.setattr(hydraulics, "analyse_reach", broken)
+    out = tmp_path / "r.gpkg"
+    code, _, err = run(base_args(valley, out), capsys)
+    assert code == 1 and "internal error" in err
+    reaches = pyogrio.read_dataframe(out, layer="reaches").set_index("reach_id")
+    assert reaches.loc["A", "status"] == "failed" and "simulated bug" in reaches.loc["A", "message"]

@@ -80,12 +80,20 @@ def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:
     if cfg.landcover_table:
         shared.class_table = tables.read_class_table(cfg.landcover_table)
         for cls, n in shared.class_table.items():
-            roughness.warn_all(roughness.check_n_range(n, force=cfg.force_n,
-                                              where=f"n of land-cover class {cls}"))
+            roughness.warn_all(roughness.check_n_range(
+                n, force=cfg.force_n, where=f"n of land-cover class {cls}"))
+    if cfg.landcover:
+        _check_raster(cfg.landcover, "land-cover raster")
     for rid, t in (shared.cowan or {}).items():
         n = roughness.cowan_n(t["base"], t["irregularity"], t["variation"], t["obstruction"],
                               t["vegetation"], t["meander"])
-        roughness.warn_all(roughness.check_n_range(n, force=cfg.force_n, where=f"Cowan n of reach {rid}"))
+        roughness.warn_all(roughness.check_n_range(n, force=cfg.force_n,
+                                                   where=f"Cowan n of reach {rid}"))
+    fields = set().union(*(r.attributes for r in net.reaches)) if net.reaches else set()
+    for option, fld in (("n-field", cfg.n_field), ("drainage-area-field", cfg.drainage_area_field)):
+        if fld and fld not in fields:
+            raise InputError(f"{option} {fld!r} is not a field of the streams",
+                             f"fields are: {', '.join(sorted(map(str, fields))) or 'none'}")
     known = {str(r.reach_id) for r in net.reaches}
     for what, ids in (("design flows", shared.flows),
                       ("observations", [] if shared.observations is None
@@ -96,6 +104,19 @@ def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:
             raise InputError(f"{what} name reach id(s) {', '.join(unknown[:5])} that are not in the "
                              "streams", f"reach ids are: {', '.join(sorted(known)[:10])}")
     return shared
+
+
+def _check_raster(path, what):
+    import rasterio
+
+    try:
+        with rasterio.open(path) as ds:
+            if ds.crs is None:
+                raise InputError(f"{what} {str(path)!r} has no CRS",
+                                 "assign one to the file or reproject it")
+    except rasterio.errors.RasterioIOError as exc:
+        raise InputError(f"cannot open {what} {str(path)!r} ({exc})",
+                         "give a raster file rasterio can read") from None
 
 
 def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
@@ -113,7 +134,9 @@ def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
         rs = cutting.cut_reach(raster, reach, cfg, neighbours)
         if rs.status != "ok" or len(rs.chainage) == 0:
             base.update(status=rs.status, message=rs.message, transects=len(rs.chainage))
-            return ReachOutput(rid, None, base, seconds=time.perf_counter() - t0)
+            # cut_reach turns its own unexpected errors into status "failed": still a bug
+            return ReachOutput(rid, None, base, error=rs.message if rs.status == "failed" else None,
+                               seconds=time.perf_counter() - t0)
         if landcover is not None and inputs.class_table:
             from .landcover import classes_at
 
