@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import textwrap
 from pathlib import Path
 
 from ..errors import InputError
@@ -15,9 +16,10 @@ DEMO_DIR = Path(__file__).resolve().parents[3] / "sample_data" / "basin"
 def add(sub):
     p = sub.add_parser(
         "demo", help="run the whole job on the bundled sample basin",
-        description="Run reachgauge on the bundled fictional basin (sample_data/basin) and write "
-                    "demo_result.gpkg and demo_report.html into --out, replacing earlier demo "
-                    "outputs there. " + CAUTION_LINE,
+        description=textwrap.fill(
+            "Run reachgauge on the bundled fictional basin (sample_data/basin) and write "
+            "demo_result.gpkg and demo_report.html into --out, replacing earlier demo "
+            "outputs there. " + CAUTION_LINE, 78),
         formatter_class=argparse.RawDescriptionHelpFormatter,
         epilog="example:\n  reachgauge demo --out demo_output\n")
     p.add_argument("--out", type=Path, default=Path("demo_output"), metavar="DIR",

@@ -63,6 +63,14 @@ def add_config_options(parser: argparse.ArgumentParser) -> None:
             if base is Path or (args and Path in args):
                 typ = str
                 kw["metavar"] = "PATH"
+            elif f.metadata.get("length"):
+                kw["metavar"] = "M"
+            elif f.name.endswith("_field"):
+                kw["metavar"] = "FIELD"
+            elif f.name.endswith("_crs"):
+                kw["metavar"] = "CRS"
+            elif "choices" not in f.metadata:
+                kw["metavar"] = "N" if typ in (int, float) else "TEXT"
             g.add_argument(flag, type=typ, **kw)
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import textwrap
 from pathlib import Path
 
 from ..notices import CAUTION_LINE
@@ -11,9 +12,10 @@ from ..notices import CAUTION_LINE
 def add(sub):
     p = sub.add_parser(
         "report", help="write the HTML report of a result GeoPackage",
-        description="Write one self-contained HTML file (works offline) with the cautions, the "
-                    "run summary, a map, and per reach the profile, sections, rating curve and a "
-                    "table of transects. " + CAUTION_LINE,
+        description=textwrap.fill(
+            "Write one self-contained HTML file (works offline) with the cautions, the "
+            "run summary, a map, and per reach the profile, sections, rating curve and a "
+            "table of transects. " + CAUTION_LINE, 78),
         formatter_class=argparse.RawDescriptionHelpFormatter,
         epilog="example:\n  reachgauge report result.gpkg --out report.html --colour-by velocity\n")
     p.add_argument("result", type=Path, help="GeoPackage written by 'reachgauge run'")

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import textwrap
 import sys
 from pathlib import Path
 
@@ -29,9 +30,10 @@ command-line values win. Lengths are in metres, or in feet with --units us.
 def add(sub):
     p = sub.add_parser(
         "run", help="the whole job on a terrain raster and stream centrelines",
-        description="Cut transects along every reach, find the thalweg and slope, pick the "
-                    "bankfull stage, compute Manning discharge, rating curves and design-flow "
-                    "checks, and write one GeoPackage. " + CAUTION_LINE,
+        description=textwrap.fill(
+            "Cut transects along every reach, find the thalweg and slope, pick the "
+            "bankfull stage, compute Manning discharge, rating curves and design-flow "
+            "checks, and write one GeoPackage. " + CAUTION_LINE, 78),
         epilog=EXAMPLE, formatter_class=argparse.RawDescriptionHelpFormatter)
     out = p.add_argument_group("output")
     out.add_argument("--out", required=True, type=Path, metavar="RESULT.gpkg",

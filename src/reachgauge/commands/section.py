@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import textwrap
 import sys
 from pathlib import Path
 
@@ -32,8 +33,9 @@ or offset and depth below the measured water surface given by --stage.
 def add(sub):
     p = sub.add_parser(
         "section", help="hydraulics of one surveyed or gauged cross-section",
-        description="Geometry, Manning discharge (or back-calculated n) and an optional rating "
-                    "table for one cross-section profile read from a CSV file. " + CAUTION_LINE,
+        description=textwrap.fill(
+            "Geometry, Manning discharge (or back-calculated n) and an optional rating "
+            "table for one cross-section profile read from a CSV file. " + CAUTION_LINE, 78),
         epilog=SECTION_EXAMPLE, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("profile", help="CSV of offset and elevation (or depth) columns")
     where = p.add_mutually_exclusive_group()
