@@ -31,8 +31,9 @@ def check_flows(ps: ProfileSet, flows: dict[str, float], slope, n, banks,
     rows = []
     bf_stage = np.asarray(bankfull_stage, dtype=float)
     bf_q = np.asarray(bankfull_q, dtype=float)
+    grid = ps.discharge_grid(slope, n, banks) if flows else None
     for name, q in flows.items():
-        stage, reached = ps.stage_for_discharge(q, slope, n, banks)
+        stage, reached = ps.stage_for_discharge(q, slope, n, banks, grid=grid)
         with np.errstate(divide="ignore", invalid="ignore"):
             ratio = np.where(bf_q > 0, q / np.where(bf_q > 0, bf_q, 1.0), np.nan)
         freeboard = bf_stage - stage

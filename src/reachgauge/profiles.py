@@ -290,7 +290,17 @@ class ProfileSet:
         k = self.conveyance(stage, n, banks)
         return k * (np.sqrt(sl)[:, None] if k.ndim == 2 else np.sqrt(sl))
 
-    def stage_for_discharge(self, q, slope, n, banks=None, reach=3.0):
+    def discharge_grid(self, slope, n, banks=None, reach=3.0):
+        """Stages (t, m), even steps from the thalweg to ``reach`` times the
+        profile's in-profile depth, and the discharge at each: the bracket
+        search of :meth:`stage_for_discharge`, computed once for many flows."""
+        sl = np.broadcast_to(np.asarray(manning.check_slope(slope), dtype=float), (self.count,))
+        nn, bk = self._prepare(n, banks)
+        frac = np.linspace(0.0, float(reach), int(128 * reach) + 1)
+        grid = self.thalweg[:, None] + frac[None, :] * (self.top - self.thalweg)[:, None]
+        return grid, self.discharge(grid, sl, nn, bk)
+
+    def stage_for_discharge(self, q, slope, n, banks=None, reach=3.0, grid=None):
         """Normal-depth stage (t,) for discharge ``q`` (scalar or (t,)) on every
         profile: the lowest stage inside the profile carrying ``q``.
 
@@ -302,15 +312,15 @@ class ProfileSet:
         perimeter), so such a stage is an upper bound where the plain continues
         beyond the transect: callers flag it (``stage > self.top``).
         Returns ``(stage, reached)``: ``reached`` is False where ``q`` exceeds
-        what the profile carries even there (``stage`` is then NaN).
+        what the profile carries even there (``stage`` is then NaN). ``grid``:
+        the result of :meth:`discharge_grid` for the same slope, n and banks,
+        to share it between flows.
         """
         t = self.count
         qq = np.broadcast_to(np.asarray(manning.check_discharge(q), dtype=float), (t,))
         sl = np.broadcast_to(np.asarray(manning.check_slope(slope), dtype=float), (t,))
         nn, bk = self._prepare(n, banks)
-        frac = np.linspace(0.0, float(reach), int(128 * reach) + 1)
-        grid = self.thalweg[:, None] + frac[None, :] * (self.top - self.thalweg)[:, None]
-        qg = self.discharge(grid, sl, nn, bk)
+        grid, qg = grid if grid is not None else self.discharge_grid(sl, nn, bk, reach)
         above = qg >= qq[:, None]
         reached = above.any(axis=1) & self.valid & (self.top > self.thalweg)
         i = np.argmax(above, axis=1)
