@@ -48,7 +48,8 @@ TRANSECT_FIELDS = {
     "n_channel": ("n", "Manning's n of the channel"),
     "n_left": ("n", "Manning's n of the left overbank"),
     "n_right": ("n", "Manning's n of the right overbank"),
-    "n_source": ("text", "where n came from: default, field, cowan, landcover, calibrated"),
+    "n_source": ("text", "where the channel n came from: default, field, cowan, landcover or "
+                         "calibrated; '+landcover': overbank n from land cover"),
     "flow_area": ("area", "channel flow area at bankfull (between the bank offsets)"),
     "perimeter": ("length", "channel wetted perimeter at bankfull"),
     "top_width": ("length", "channel water-surface width at bankfull (bank to bank)"),
