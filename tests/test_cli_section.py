@@ -124,6 +124,11 @@ def test_banks_split(capsys):
     code, out, _ = run(["section", SAMPLE, "--stage", 101.7, "--slope", 0.0021, "--n", 0.06, 0.035,
                         0.06, "--banks", 6.5, 18], capsys)
     assert code == 0 and "left overbank" in out and "note: the water reaches an end" not in out
+    # divided-channel method (Chow 1959, §6-9): the parts' discharges add up to the total
+    total = float(next(l for l in out.splitlines() if l.startswith("discharge")).split()[1])
+    parts = [float(l.split("discharge ")[1].split()[0]) for l in out.splitlines()
+             if l.startswith("  ") and "discharge" in l]
+    assert len(parts) == 3 and sum(parts) == pytest.approx(total, rel=2e-3)
     assert np.isfinite(float(next(l for l in out.splitlines() if l.startswith("discharge")).split()[1]))
 
 

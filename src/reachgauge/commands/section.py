@@ -131,9 +131,13 @@ def run(args) -> int:
         lines.append(f"{name:<19}{val:.4g} {unit}".rstrip())
     if args.banks:
         sub = cs.subsections(stage)
-        for label, part in zip(("left overbank", "channel", "right overbank"), sub.parts):
+        n3 = np.broadcast_to(np.asarray(n_used, dtype=float), (3,))
+        for label, part, ni in zip(("left overbank", "channel", "right overbank"), sub.parts, n3):
+            qi = float(manning.conveyance(part.area, part.hydraulic_radius, ni, args.units)
+                       * np.sqrt(args.slope))
             lines.append(f"  {label:<17}area {float(part.area):.4g} {u.area}, "
-                         f"wetted perimeter {float(part.wetted_perimeter):.4g} {u.length}")
+                         f"wetted perimeter {float(part.wetted_perimeter):.4g} {u.length}, "
+                         f"n {ni:g}, discharge {qi:.4g} {u.discharge}")
     if args.discharge is not None:
         matches = roughness.table_matches(n_back, kind="channel")
         if matches:
