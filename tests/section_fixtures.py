@@ -21,6 +21,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from hypothesis import strategies as st
 from scipy.ndimage import gaussian_filter1d
 
 from reachgauge import CrossSection
@@ -141,3 +142,14 @@ def trapezoid(*, bottom_width=6.0, side_slope=1.5, depth=1.5, bed=100.0, spacing
     flat = (t, t + bottom_width, bed) if flat_bed else None
     x, z = sample(xs, zs, spacing=spacing, noise=noise, seed=seed, flat=flat)
     return Synthetic(name, CrossSection(x, z), bed + depth, bed, (0.0, xs[-1]), (xs, zs))
+
+
+@st.composite
+def random_profiles(draw):
+    """Hypothesis strategy: any ground line of 3 to 40 points, offsets strictly
+    increasing by 0.05-5 m, elevations anywhere in -5..5 m (property tests)."""
+    n = draw(st.integers(3, 40))
+    steps = draw(st.lists(st.floats(0.05, 5.0), min_size=n - 1, max_size=n - 1))
+    x = np.concatenate([[0.0], np.cumsum(steps)])
+    z = np.array(draw(st.lists(st.floats(-5.0, 5.0), min_size=n, max_size=n)))
+    return x, z

@@ -35,7 +35,7 @@ from reachgauge.config import BANKFULL_METHODS, RunConfig
 from reachgauge.errors import InputError
 from reachgauge.flags import FLAGS
 
-from section_fixtures import compound_channel, trapezoid, v_valley
+from section_fixtures import compound_channel, random_profiles as profiles, trapezoid, v_valley
 
 FAST = settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
@@ -303,15 +303,6 @@ def test_property_mirror_and_datum_shift(shape, seed, shift):
     assert s.stage == pytest.approx(p.stage + shift, abs=step)
     if m.stage == pytest.approx(p.stage, abs=1e-9):
         assert m.left_bank == pytest.approx(-p.right_bank, abs=1e-6)
-
-
-@st.composite
-def profiles(draw):
-    n = draw(st.integers(3, 40))
-    steps = draw(st.lists(st.floats(0.05, 5.0), min_size=n - 1, max_size=n - 1))
-    x = np.concatenate([[0.0], np.cumsum(steps)])
-    z = np.array(draw(st.lists(st.floats(-5.0, 5.0), min_size=n, max_size=n)))
-    return x, z
 
 
 @FAST

@@ -13,19 +13,11 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from reachgauge import CrossSection
+from section_fixtures import random_profiles as profiles
 
 # more examples than hypothesis's default for the core geometry; CI runs them
 # derandomised (tests/conftest.py), so a failure there is repeatable
 PROPERTY = settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-
-
-@st.composite
-def profiles(draw):
-    n = draw(st.integers(3, 40))
-    steps = draw(st.lists(st.floats(0.05, 5.0), min_size=n - 1, max_size=n - 1))
-    x = np.concatenate([[0.0], np.cumsum(steps)])
-    z = np.array(draw(st.lists(st.floats(-5.0, 5.0), min_size=n, max_size=n)))
-    return x, z
 
 
 def brute_force(x, z, s, m=20000):

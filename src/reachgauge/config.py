@@ -123,6 +123,10 @@ class RunConfig:
         return dataclasses.replace(self, **changes)
 
 
+# the settings that name input files
+PATH_FIELDS = tuple(f.name for f in dataclasses.fields(RunConfig) if "Path" in str(f.type))
+
+
 def fields_by_group():
     groups: dict[str, list[dataclasses.Field]] = {}
     for f in dataclasses.fields(RunConfig):
@@ -155,8 +159,7 @@ def from_mapping(values: dict, units: str | None = None, *, source: str = "confi
             val = tuple(v * FOOT for v in val) if isinstance(val, (list, tuple)) else val * FOOT
         if isinstance(val, list):
             val = tuple(val)
-        if key in ("dem", "streams", "landcover", "landcover_table", "cowan", "observations",
-                   "design_flows") and val is not None:
+        if key in PATH_FIELDS and val is not None:
             val = Path(val)
         out[key] = val
     cfg = RunConfig(**out)
@@ -180,8 +183,7 @@ def read_toml(path) -> dict:
         else:
             flat[key] = val
     # relative paths in a config file are relative to the file
-    for key in ("dem", "streams", "landcover", "landcover_table", "cowan", "observations",
-                "design_flows"):
+    for key in PATH_FIELDS:
         if isinstance(flat.get(key), str) and not Path(flat[key]).is_absolute():
             flat[key] = str(p.parent / flat[key])
     return flat

@@ -12,11 +12,14 @@ on hydraulic depth; boundary shear gamma R S; unit stream power gamma Q S / w
 
 from __future__ import annotations
 
+from dataclasses import dataclass, field
+
 import numpy as np
 import pandas as pd
 
-from . import manning
-from .section import CrossSection
+from . import calibration, capacity, flags, manning, roughness, schema
+from .profiles import ProfileSet
+from .section import CrossSection, safe_ratio
 
 def figures(section: CrossSection, stage, slope: float, n, units: str = "si") -> pd.DataFrame:
     """Every hydraulic figure at each stage, one row per stage.
@@ -30,7 +33,7 @@ def figures(section: CrossSection, stage, slope: float, n, units: str = "si") ->
     st = np.atleast_1d(np.asarray(stage, dtype=float))
     geo = section.geometry(st)
     q = section.discharge(st, slope, n, units)
-    v = np.where(geo.area > 0, q / np.where(geo.area > 0, geo.area, 1.0), 0.0)
+    v = safe_ratio(q, geo.area)
     r = geo.hydraulic_radius
     return pd.DataFrame({
         "stage": st,
@@ -50,11 +53,7 @@ def figures(section: CrossSection, stage, slope: float, n, units: str = "si") ->
 
 
 # ====================================================== a whole reach at once
-from dataclasses import dataclass, field  # noqa: E402
-from types import SimpleNamespace  # noqa: E402
 
-from . import calibration, capacity, flags, roughness  # noqa: E402
-from .profiles import ProfileSet  # noqa: E402
 
 
 @dataclass
@@ -194,7 +193,7 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
             tflags[i].append("n-unknown-class")
 
     # ---- calibration
-    cal = pd.DataFrame(columns=list(_CAL_COLS))
+    cal = pd.DataFrame(columns=list(schema.CALIBRATION_FIELDS))
     n_obs = np.full(t, np.nan)
     n_cal = np.nan
     obs = inputs.observations
@@ -238,9 +237,8 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
     q_parts = q_parts * np.sqrt(slope)
     q = q_parts.sum(axis=0)
     a_ch, p_ch, w_ch, r_ch = parts.area[1], parts.wetted_perimeter[1], parts.top_width[1], rp[1]
-    hd = _ratio(a_ch, w_ch)
-    vel = _ratio(q_parts[1], a_ch)
-    geo = SimpleNamespace(top_width=w_ch, area=a_ch)
+    hd = safe_ratio(a_ch, w_ch)
+    vel = safe_ratio(q_parts[1], a_ch)
     tr = pd.DataFrame({
         "reach_id": rid, "station": np.arange(t), "chainage": np.asarray(rs.chainage, float),
         "status": status, "flags": [flags.join(f) for f in tflags],
@@ -253,7 +251,7 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
         "n_channel": n_parts[:, 1], "n_left": n_parts[:, 0], "n_right": n_parts[:, 2],
         "n_source": src,
         "flow_area": a_ch, "perimeter": p_ch, "top_width": w_ch,
-        "hyd_radius": r_ch, "hyd_depth": hd, "width_depth": _ratio(w_ch, hd),
+        "hyd_radius": r_ch, "hyd_depth": hd, "width_depth": safe_ratio(w_ch, hd),
         "velocity": vel, "discharge": q, "froude": manning.froude(vel, hd),
         "shear": manning.shear_stress(r_ch, slope),
         "stream_power": manning.unit_stream_power(q_parts[1], slope, w_ch),
@@ -295,8 +293,7 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
     design["chainage"] = np.asarray(rs.chainage, float)[design["station"].to_numpy(int)] \
         if len(design) else []
     q_med = float(np.nanmedian(q[ok])) if ok.any() else np.nan
-    reach_flows = capacity.summarise_flows(checks, q_med, ok) if len(checks) else \
-        capacity.summarise_flows(checks, q_med, ok)
+    reach_flows = capacity.summarise_flows(checks, q_med, ok)
     if len(reach_flows):
         rf = reach_flows.copy()
         rf["reach_id"], rf["station"], rf["chainage"] = rid, -1, np.nan
@@ -325,7 +322,7 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
         "transects_ok": int(ok.sum()), "transects_flagged": int(sum(flags.has_quality_flag(f) for f in tr["flags"])),
         "slope": rs.reach_slope, "slope_flags": getattr(rs, "slope_flags", ""),
         "bankfull_depth": summary.median_depth, "depth_spread": summary.iqr,
-        "top_width": _nanmedian(geo.top_width[ok]), "flow_area": _nanmedian(geo.area[ok]),
+        "top_width": _nanmedian(w_ch[ok]), "flow_area": _nanmedian(a_ch[ok]),
         "discharge": q_med,
         "discharge_p25": float(np.nanpercentile(okq, 25)) if okq.size else np.nan,
         "discharge_p75": float(np.nanpercentile(okq, 75)) if okq.size else np.nan,
@@ -344,44 +341,26 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
                        offsets=x)
 
 
-_CAL_COLS = ("reach_id", "station", "chainage", "stage", "depth", "discharge", "n_back", "table_rows")
-
-
-def _ratio(a, b):
-    a = np.asarray(a, dtype=float)
-    b = np.asarray(b, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(b > 0, a / np.where(b > 0, b, 1.0), 0.0)
-
-
 def _nanmedian(v):
     v = np.asarray(v, dtype=float)
     return float(np.nanmedian(v)) if np.isfinite(v).any() else float("nan")
 
 
-def _curve(ps, stages, slope, n_parts, banks):
-    """Geometry and divided-channel discharge at stages (t, m)."""
-    geo = ps.geometry(stages)
-    q = ps.discharge(stages, slope, n_parts, banks)
-    return geo, q
-
-
 def _curve_table(ps, rid, chainage, stages, slope, n_parts, banks, ok):
     rows = np.nonzero(ok)[0]
     if rows.size == 0:
-        return pd.DataFrame(columns=["reach_id", "station", "chainage", "stage", "depth", "flow_area",
-                                     "perimeter", "top_width", "hyd_radius", "velocity",
-                                     "discharge", "spills"])
+        return pd.DataFrame(columns=list(schema.RATING_FIELDS))
     sub = ps.take(rows)
     st = stages[rows]
-    geo, q = _curve(sub, st, slope[rows], n_parts[rows], banks[rows])
+    geo = sub.geometry(st)
+    q = sub.discharge(st, slope[rows], n_parts[rows], banks[rows])
     m = st.shape[1]
     return pd.DataFrame({
         "reach_id": rid, "station": np.repeat(rows, m),
         "chainage": np.repeat(np.asarray(chainage, float)[rows], m),
         "stage": st.ravel(), "depth": geo.depth.ravel(), "flow_area": geo.area.ravel(),
         "perimeter": geo.wetted_perimeter.ravel(), "top_width": geo.top_width.ravel(),
-        "hyd_radius": geo.hydraulic_radius.ravel(), "velocity": _ratio(q, geo.area).ravel(),
+        "hyd_radius": geo.hydraulic_radius.ravel(), "velocity": safe_ratio(q, geo.area).ravel(),
         "discharge": q.ravel(), "spills": geo.spills.ravel(),
     })
 
@@ -396,7 +375,7 @@ def _stage_table(ps, rid, chainage, requests, slope, n_parts, banks, ok):
         return tab
     k = len(labels)
     tab.insert(3, "request", np.tile(labels, int(ok.sum())))
-    hd = _ratio(tab["flow_area"], tab["top_width"])
+    hd = safe_ratio(tab["flow_area"], tab["top_width"])
     tab["froude"] = manning.froude(tab["velocity"].to_numpy(), hd)
     sl = np.repeat(slope[ok], k)
     tab["shear"] = manning.shear_stress(tab["hyd_radius"].to_numpy(), sl)

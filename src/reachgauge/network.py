@@ -40,6 +40,7 @@ from __future__ import annotations
 import hashlib
 import math
 import os
+import time
 import warnings
 from collections import Counter
 from contextlib import contextmanager
@@ -194,15 +195,28 @@ def _check_exists(path, what, option):
     return text
 
 
-def fingerprint(path) -> str:
-    """Size, modification time and SHA-256 of the first MB of a local file."""
+def describe_file(path) -> dict:
+    """Size, modification time and SHA-256 of the first MiB of a local file, so a
+    result can be traced to its inputs without hashing a huge raster whole; just
+    the path for a remote one."""
     try:
         st = os.stat(path)
         with open(path, "rb") as fh:
             digest = hashlib.sha256(fh.read(1 << 20)).hexdigest()
     except OSError:
+        return {"path": str(path)}
+    return {"path": str(Path(path).resolve()), "bytes": st.st_size,
+            "modified": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime(st.st_mtime)),
+            "sha256_first_mib": digest}
+
+
+def fingerprint(path) -> str:
+    """:func:`describe_file` as one line: size, mtime and SHA-256 of the first MB."""
+    d = describe_file(path)
+    if "sha256_first_mib" not in d:
         return f"remote:{path}"
-    return f"size={st.st_size};mtime={int(st.st_mtime)};sha256-first-MB={digest}"
+    mtime = int(os.stat(path).st_mtime)
+    return f"size={d['bytes']};mtime={mtime};sha256-first-MB={d['sha256_first_mib']}"
 
 
 def _unit_factor(crs: CRS) -> float:

@@ -108,14 +108,10 @@ def write_csv_dir(folder, tables: dict, *, overwrite: bool = False) -> list[Path
 def build_layers(run, cfg) -> dict:
     """The result layers of a run (see :mod:`reachgauge.schema`), in the run's
     units and the terrain raster's own CRS."""
-    import dataclasses
-
     import geopandas as gpd
     import shapely
 
-    from . import __version__, schema
-    from .notices import CAUTION_LINE
-    from .pipeline import fingerprint
+    from . import schema
 
     net = run.network
     work, source = net.work_crs, net.source_crs
@@ -147,7 +143,7 @@ def build_layers(run, cfg) -> dict:
         df = pd.concat(frames, ignore_index=True) if frames else schema.empty_frame(fields)
         return schema.column_order(schema.to_units(df, fields, cfg.units), fields)
 
-    def geo(frames, fields, geom_type):
+    def geo(frames, fields):
         frames = [f for f in frames if len(f)]
         if frames:
             g = gpd.GeoDataFrame(pd.concat(frames, ignore_index=True), crs=work)
@@ -164,9 +160,9 @@ def build_layers(run, cfg) -> dict:
         schema.column_order(schema.to_units(pd.DataFrame(reaches), schema.REACH_FIELDS, cfg.units),
                             schema.REACH_FIELDS), geometry="geometry", crs=source)
     layers = {
-        "transects": geo(tr_frames, schema.TRANSECT_FIELDS, "LineString"),
+        "transects": geo(tr_frames, schema.TRANSECT_FIELDS),
         "reaches": reaches,
-        "thalweg_points": geo(pt_frames, schema.TRANSECT_FIELDS, "Point"),
+        "thalweg_points": geo(pt_frames, schema.TRANSECT_FIELDS),
         "rating_curves": cat(rating, schema.RATING_FIELDS),
         "stage_figures": cat(stages, schema.STAGE_FIELDS),
         "design_checks": cat(design, schema.DESIGN_FIELDS),
@@ -174,7 +170,7 @@ def build_layers(run, cfg) -> dict:
         "calibration": cat(cal, schema.CALIBRATION_FIELDS),
         "sample_sections": cat(samples, schema.SAMPLE_SECTION_FIELDS),
     }
-    layers["run_info"] = run_info(run, cfg, __version__, CAUTION_LINE, fingerprint, dataclasses)
+    layers["run_info"] = run_info(run, cfg)
     return layers
 
 
@@ -198,8 +194,9 @@ def _sample_sections(out, count: int = 4) -> pd.DataFrame:
     return pd.concat(frames, ignore_index=True)
 
 
-def run_info(run, cfg, version, caution, fingerprint, dataclasses) -> pd.DataFrame:
+def run_info(run, cfg) -> pd.DataFrame:
     """Key–value table: parameters, units, versions and input fingerprints."""
+    import dataclasses
     import json
     import platform
 
@@ -210,15 +207,18 @@ def run_info(run, cfg, version, caution, fingerprint, dataclasses) -> pd.DataFra
     import scipy
     import shapely
 
-    from . import schema
+    from . import __version__, schema
+    from .config import PATH_FIELDS
+    from .network import describe_file
+    from .notices import CAUTION_LINE
 
-    rows = [("reachgauge_version", version), ("created_utc", time.strftime("%Y-%m-%dT%H:%M:%SZ",
+    rows = [("reachgauge_version", __version__), ("created_utc", time.strftime("%Y-%m-%dT%H:%M:%SZ",
                                                                            time.gmtime())),
             ("units", cfg.units),
             ("unit_labels", json.dumps(schema.UNIT_LABELS[cfg.units], ensure_ascii=False)),
             ("crs", run.network.source_crs.to_string()),
             ("work_crs", run.network.work_crs.to_string()),
-            ("elapsed_s", f"{run.elapsed:.2f}"), ("caution", caution)]
+            ("elapsed_s", f"{run.elapsed:.2f}"), ("caution", CAUTION_LINE)]
     for f in dataclasses.fields(cfg):
         v = getattr(cfg, f.name)
         if f.metadata.get("length") and v is not None and cfg.units == "us":
@@ -231,11 +231,10 @@ def run_info(run, cfg, version, caution, fingerprint, dataclasses) -> pd.DataFra
         rows.append((f"version.{name}", platform.python_version() if mod is None
                      else mod.__version__))
     rows.append(("version.gdal", rasterio.__gdal_version__))
-    for key in ("dem", "streams", "landcover", "landcover_table", "cowan", "observations",
-                "design_flows"):
+    for key in PATH_FIELDS:
         p = getattr(cfg, key)
         if p:
-            rows.append((f"input.{key}", json.dumps(fingerprint(p))))
+            rows.append((f"input.{key}", json.dumps(describe_file(p))))
     for w in run.warnings:
         rows.append(("warning", w))
     return pd.DataFrame(rows, columns=["key", "value"])

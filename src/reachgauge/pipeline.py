@@ -154,7 +154,7 @@ def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
                            seconds=time.perf_counter() - t0)
 
 
-def iterate(cfg: RunConfig, net, shared: SharedInputs, progress=None):
+def iterate(cfg: RunConfig, net, shared: SharedInputs):
     """Yield a :class:`ReachOutput` per reach as each finishes, on the executor
     the config asks for: ``scheduler`` (Dask), ``jobs`` > 1 or 0 (process pool),
     else serial."""
@@ -220,22 +220,6 @@ def compute(cfg: RunConfig, progress=None) -> RunResult:
     order = {str(r.reach_id): i for i, r in enumerate(net.reaches)}
     outputs.sort(key=lambda o: order.get(o.reach_id, 0))
     return RunResult(net, outputs, time.perf_counter() - t0, list(net.warnings))
-
-
-def fingerprint(path) -> dict:
-    """Size, modification time and SHA-256 of the first MiB of a file, so a
-    result can be traced to its inputs without hashing a huge raster whole."""
-    import hashlib
-
-    p = Path(path)
-    if not p.is_file():
-        return {"path": str(p)}
-    with open(p, "rb") as f:
-        head = hashlib.sha256(f.read(1 << 20)).hexdigest()
-    st = p.stat()
-    return {"path": str(p.resolve()), "bytes": st.st_size,
-            "modified": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime(st.st_mtime)),
-            "sha256_first_mib": head}
 
 
 @dataclass

@@ -21,7 +21,7 @@ import pandas as pd
 from scipy.optimize import elementwise
 
 from . import manning
-from .section import Geometry
+from .section import Geometry, safe_ratio
 
 _BLOCK_CELLS = 3_000_000
 
@@ -36,9 +36,7 @@ class Parts:
 
     @property
     def hydraulic_radius(self):
-        with np.errstate(divide="ignore", invalid="ignore"):
-            return np.where(self.wetted_perimeter > 0, self.area / np.where(
-                self.wetted_perimeter > 0, self.wetted_perimeter, 1.0), 0.0)
+        return safe_ratio(self.area, self.wetted_perimeter)
 
 
 class ProfileSet:
@@ -74,8 +72,8 @@ class ProfileSet:
         self.thalweg = filled[rows, self.i0]
         self.thalweg_offset = x[self.i0]
 
-        # running maxima outward from the thalweg; -inf beyond the thalweg so they
-        # do not count, +inf beyond the profile ends (never "below the stage")
+        # running maxima outward from the thalweg (-inf on the other side of it,
+        # so they do not count); _bounds only reads them between the profile ends
         left = np.where(idx[None, :] <= self.i0[:, None], filled, -np.inf)
         self._left_max = np.maximum.accumulate(left[:, ::-1], axis=1)[:, ::-1]
         right = np.where(idx[None, :] >= self.i0[:, None], filled, -np.inf)
@@ -83,7 +81,6 @@ class ProfileSet:
         # highest stage inside the profile: the lower of the two sides' highest
         # points (see CrossSection.top)
         self.top = np.minimum(self._left_max[rows, lo], self._right_max[rows, hi])
-        self._inside = inside
         self._dx = np.diff(x)
 
     def take(self, rows) -> "ProfileSet":
@@ -92,7 +89,7 @@ class ProfileSet:
         new = object.__new__(ProfileSet)
         new.offset, new._dx = self.offset, self._dx
         for name in ("elevation", "valid", "lo", "hi", "i0", "thalweg", "thalweg_offset", "top",
-                     "_left_max", "_right_max", "_inside"):
+                     "_left_max", "_right_max"):
             setattr(new, name, getattr(self, name)[rows])
         return new
 
@@ -243,13 +240,13 @@ class ProfileSet:
         jl, jr, _, _ = self._bounds(rows, s)
         if bk is None:
             a, p, _ = self._clip(rows, s, jl, jr)
-            return manning.conveyance(a, _ratio(a, p), n.reshape(-1, 1))
+            return manning.conveyance(a, safe_ratio(a, p), n.reshape(-1, 1))
         total = 0.0
         lo = np.full(rows.size, -np.inf)
         hi = np.full(rows.size, np.inf)
         for k, (a_, b_) in enumerate(((lo, bk[:, 0]), (bk[:, 0], bk[:, 1]), (bk[:, 1], hi))):
             a, p, _ = self._clip(rows, s, jl, jr, a_, b_)
-            total = total + manning.conveyance(a, _ratio(a, p), n[:, k:k + 1])
+            total = total + manning.conveyance(a, safe_ratio(a, p), n[:, k:k + 1])
         return total
 
     def _prepare(self, n, banks):
@@ -343,7 +340,3 @@ class ProfileSet:
             stage[r] = res.x
         return stage, reached
 
-
-def _ratio(a, b):
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return np.where(b > 0, a / np.where(b > 0, b, 1.0), 0.0)

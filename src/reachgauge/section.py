@@ -54,12 +54,12 @@ class Geometry:
     @property
     def hydraulic_radius(self) -> np.ndarray:
         """R = A / P; 0 where dry."""
-        return _safe_ratio(self.area, self.wetted_perimeter)
+        return safe_ratio(self.area, self.wetted_perimeter)
 
     @property
     def hydraulic_depth(self) -> np.ndarray:
         """D = A / T (Chow 1959, §2-7); 0 where dry."""
-        return _safe_ratio(self.area, self.top_width)
+        return safe_ratio(self.area, self.top_width)
 
     @property
     def spills(self) -> np.ndarray:
@@ -94,10 +94,11 @@ class _Part:
 
     @property
     def hydraulic_radius(self) -> np.ndarray:
-        return _safe_ratio(self.area, self.wetted_perimeter)
+        return safe_ratio(self.area, self.wetted_perimeter)
 
 
-def _safe_ratio(a, b):
+def safe_ratio(a, b):
+    """a / b, 0 where b is 0 (a dry section has no hydraulic radius or depth)."""
     a = np.asarray(a, dtype=float)
     b = np.asarray(b, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):

@@ -120,10 +120,6 @@ class Progress:
         if out.error and self.verbose:
             print(out.error, file=self.stream)
 
-    def info(self, text):
-        if not self.quiet:
-            print(text, file=self.stream)
-
 
 def raise_if_missing(cfg):
     if cfg.dem is None or cfg.streams is None:
