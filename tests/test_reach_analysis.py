@@ -127,3 +127,16 @@ def test_user_stages_and_baseflow_correction():
     assert e.depth == pytest.approx(0.5)
     more = analyse_reach(rs, RunConfig(n=0.035, baseflow_depth=0.3))
     assert (more.transects.flow_area.dropna() > res.transects.flow_area.dropna() + 0.3).all()
+
+
+def test_min_freeboard_is_unknown_when_a_flow_has_no_stage():
+    rs = fake_reach()
+    q_bf = float(analyse_reach(rs, RunConfig(n=0.035)).transects.discharge.iloc[0])
+    # 1e7 m³/s is carried by no stage up to three times the profile's depth
+    res = analyse_reach(rs, RunConfig(n=0.035), ReachInputs(flows={"half": 0.5 * q_bf, "absurd": 1e7}))
+    ok = res.transects[res.transects.status == "ok"]
+    assert ok.min_freeboard.isna().all()
+    only = analyse_reach(rs, RunConfig(n=0.035), ReachInputs(flows={"half": 0.5 * q_bf}))
+    d = only.design[(only.design.station >= 0)].set_index("station")
+    ok = only.transects[only.transects.status == "ok"].set_index("station")
+    np.testing.assert_allclose(ok.min_freeboard, d.loc[ok.index, "freeboard"])

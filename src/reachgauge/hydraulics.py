@@ -298,18 +298,21 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
         rf = reach_flows.copy()
         rf["reach_id"], rf["station"], rf["chainage"] = rid, -1, np.nan
         design = pd.concat([design, rf], ignore_index=True)
-    min_fb = np.full(t, np.nan)
+    # least freeboard over the flows; a flow with no stage (not carried even far
+    # above the transect) makes it unknown, NaN, as does having no flow at all
+    idx = checks["index"].to_numpy(int)
+    fb = checks["freeboard"].to_numpy(float)
+    min_fb = np.full(t, np.inf)
+    np.minimum.at(min_fb, idx, np.where(np.isfinite(fb), fb, -np.inf))
     out_names = [[] for _ in range(t)]
-    for _, row in checks.iterrows() if len(checks) else []:
-        i = int(row["index"])
-        fb = row["freeboard"] if np.isfinite(row["freeboard"]) else -np.inf
-        min_fb[i] = fb if not np.isfinite(min_fb[i]) else min(min_fb[i], fb)
-        if row["out_of_bank"]:
-            out_names[i].append(row["flow"])
+    for i, flow, out, over in zip(idx, checks["flow"], checks["out_of_bank"],
+                                  checks["over_profile"]):
+        if out:
+            out_names[i].append(flow)
             tflags[i].append("out-of-bank")
-        if row["over_profile"]:
+        if over:
             tflags[i].append("over-profile")
-    tr["min_freeboard"] = np.where(np.isneginf(min_fb), np.nan, min_fb)
+    tr["min_freeboard"] = np.where(np.isfinite(min_fb), min_fb, np.nan)
     tr["flows_out"] = [";".join(v) for v in out_names]
     tr["flags"] = [flags.join(f) for f in tflags]
 
