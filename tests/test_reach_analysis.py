@@ -132,8 +132,9 @@ def test_user_stages_and_baseflow_correction():
 def test_min_freeboard_is_unknown_when_a_flow_has_no_stage():
     rs = fake_reach()
     q_bf = float(analyse_reach(rs, RunConfig(n=0.035)).transects.discharge.iloc[0])
-    # 1e7 m³/s is carried by no stage up to three times the profile's depth
-    res = analyse_reach(rs, RunConfig(n=0.035), ReachInputs(flows={"half": 0.5 * q_bf, "absurd": 1e7}))
+    # 1e7 m³/s is carried by no stage up to three times the profile's depth; it comes
+    # first, so a later flow must not overwrite the unknown
+    res = analyse_reach(rs, RunConfig(n=0.035), ReachInputs(flows={"absurd": 1e7, "half": 0.5 * q_bf}))
     ok = res.transects[res.transects.status == "ok"]
     assert ok.min_freeboard.isna().all()
     only = analyse_reach(rs, RunConfig(n=0.035), ReachInputs(flows={"half": 0.5 * q_bf}))
