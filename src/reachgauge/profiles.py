@@ -21,7 +21,7 @@ import pandas as pd
 from scipy.optimize import elementwise
 
 from . import manning
-from .section import Geometry, safe_ratio
+from .section import Geometry, clip_at_water, safe_ratio
 
 _BLOCK_CELLS = 3_000_000
 
@@ -148,20 +148,11 @@ class ProfileSet:
             zb = z1 + u2 * (z2 - z1)
         w = xb - xa                                   # (r, nseg) horizontal length
         length = np.hypot(w, zb - za)
-        d1 = s[:, :, None] - za[:, None, :]
-        d2 = s[:, :, None] - zb[:, None, :]
-        p1 = np.maximum(d1, 0.0)
-        p2 = np.maximum(d2, 0.0)
-        denom = np.abs(d1) + np.abs(d2)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            frac = np.where(denom > 0, (p1 + p2) / np.where(denom > 0, denom, 1.0), 0.0)
         seg = np.arange(x1.size)
         connected = (seg[None, None, :] >= jl[:, :, None]) & (seg[None, None, :] < jr[:, :, None])
-        frac = np.where(connected, frac, 0.0)
-        area = (0.5 * (p1 + p2) * frac * w[:, None, :]).sum(axis=2)
-        perim = (frac * length[:, None, :]).sum(axis=2)
-        width = (frac * w[:, None, :]).sum(axis=2)
-        return area, perim, width
+        parts = clip_at_water(s[:, :, None] - za[:, None, :], s[:, :, None] - zb[:, None, :],
+                              w[:, None, :], length[:, None, :], connected)
+        return tuple(p.sum(axis=2) for p in parts)
 
     def _row_blocks(self, m):
         per = max(1, _BLOCK_CELLS // max(1, m * self.offset.size))

@@ -105,6 +105,25 @@ def safe_ratio(a, b):
         return np.where(b > 0, a / np.where(b > 0, b, 1.0), 0.0)
 
 
+def clip_at_water(d1, d2, width, length, connected):
+    """Wetted area, perimeter and top width of straight ground segments.
+
+    ``d1``, ``d2``: water depth (stage minus ground) at each segment's ends;
+    ``width``, ``length``: its horizontal and sloping lengths; ``connected``:
+    segments whose water joins the thalweg (others count nothing). All arrays
+    broadcast. With d⁺ = max(d, 0) the wet fraction of a segment is
+    (d1⁺ + d2⁺) / (|d1| + |d2|), exact where a straight segment crosses the
+    water line; its area is the trapezoid 0.5 (d1⁺ + d2⁺) × wet width.
+    """
+    p1 = np.maximum(d1, 0.0)
+    p2 = np.maximum(d2, 0.0)
+    denom = np.abs(d1) + np.abs(d2)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        frac = np.where(denom > 0, (p1 + p2) / np.where(denom > 0, denom, 1.0), 0.0)
+    frac = np.where(connected, frac, 0.0)
+    return 0.5 * (p1 + p2) * frac * width, frac * length, frac * width
+
+
 class CrossSection:
     """One profile across a channel: ``offset`` (left to right looking
     downstream) and ``elevation``, both 1-D arrays in the same length unit.
@@ -200,21 +219,11 @@ class CrossSection:
     def _segments(self, stage):
         """Per-segment wetted area, perimeter and top width at each stage.
 
-        Returns arrays of shape (stages, segments) plus the water-edge offsets
-        and spill flags. The clipping formula: with depths d1, d2 at a segment's
-        ends, the wet fraction is (d1⁺ + d2⁺) / (|d1| + |d2|), exact for a straight
-        segment crossing the water line.
+        Returns arrays of shape (stages, segments) (see :func:`clip_at_water`)
+        plus the water-edge offsets and spill flags.
         """
         s = stage[:, None]
         z = self.elevation
-        d1 = s - z[None, :-1]
-        d2 = s - z[None, 1:]
-        p1 = np.maximum(d1, 0.0)
-        p2 = np.maximum(d2, 0.0)
-        denom = np.abs(d1) + np.abs(d2)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            frac = np.where(denom > 0, (p1 + p2) / np.where(denom > 0, denom, 1.0), 0.0)
-
         i0 = self._i0
         nseg = z.size - 1
         kl = np.searchsorted(self._left_max, stage, side="left")
@@ -225,11 +234,8 @@ class CrossSection:
         jr = np.where(spill_r, nseg, i0 + np.minimum(kr, nseg - i0))
         seg = np.arange(nseg)[None, :]
         connected = (seg >= jl[:, None]) & (seg < jr[:, None])
-        frac = np.where(connected, frac, 0.0)
-
-        area = 0.5 * (p1 + p2) * frac * self._dx[None, :]
-        perim = frac * self._seglen[None, :]
-        width = frac * self._dx[None, :]
+        area, perim, width = clip_at_water(s - z[None, :-1], s - z[None, 1:], self._dx[None, :],
+                                           self._seglen[None, :], connected)
 
         # Water edges: interpolated crossing on the boundary segment, or the end.
         x = self.offset
