@@ -105,15 +105,15 @@ def _reach(j: int, rid: str, name: str, t: int):
         "flags": tflags, "thalweg_z": thalweg, "thalweg_shift": 0.0, "slope": SLOPE,
         "bankfull_method": "bank-top", "confidence": conf, "bankfull_stage": stage,
         "bankfull_depth": y_bf, "bank_left": bank[:, 0], "bank_right": bank[:, 1],
-        "method_spread": 0.1, "n_channel": N, "n_left": N, "n_right": N, "n_source": "default",
+        "method_spread": 0.1, "n_channel": N, "n_overbank_left": N, "n_overbank_right": N, "n_source": "default",
         "flow_area": area, "perimeter": perim, "top_width": top, "hyd_radius": area / perim,
         "hyd_depth": area / top, "width_depth": top / (area / top),
         "velocity": q / area, "discharge": q, "froude": (q / area) / np.sqrt(9.80665 * area / top),
         "shear": 9810 * area / perim * SLOPE, "stream_power": 9810 * q * SLOPE / top,
-        "q_left": 0.0, "q_channel": q, "q_right": 0.0, "n_observed": np.nan,
+        "q_overbank_left": 0.0, "q_main_channel": q, "q_overbank_right": 0.0, "n_observed": np.nan,
     })
     kept = ("reach_id", "station", "chainage", "status", "flags", "thalweg_z", "thalweg_shift",
-            "slope", "n_channel", "n_left", "n_right", "n_source")
+            "slope", "n_channel", "n_overbank_left", "n_overbank_right", "n_source")
     fig_cols = [c for c in tr.columns if c not in kept]
     tr.loc[~ok, fig_cols] = np.nan
     tr.loc[~ok, ["bankfull_method", "confidence"]] = ""

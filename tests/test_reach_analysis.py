@@ -71,7 +71,7 @@ def test_bankfull_figures_match_closed_form():
         assert row.flow_area == pytest.approx((B + Z * y) * y, rel=1e-9)
         # banks at the water edges: the channel carries everything in bank
         assert row.discharge == pytest.approx(closed_form_q(y, 0.035), rel=1e-6)
-        assert row.q_left == pytest.approx(0.0, abs=1e-9)
+        assert row.q_overbank_left == pytest.approx(0.0, abs=1e-9)
     bad = tr[tr.status != "ok"].iloc[0]
     assert bad.station == 7 and np.isnan(bad.discharge)
     assert res.reach["transects_ok"] == 9

@@ -248,19 +248,21 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
         "confidence": [p.confidence if p else "" for p in picks],
         "bankfull_stage": bf_stage, "bankfull_depth": bf_depth,
         "bank_left": banks[:, 0], "bank_right": banks[:, 1], "method_spread": spread,
-        "n_channel": n_parts[:, 1], "n_left": n_parts[:, 0], "n_right": n_parts[:, 2],
+        "n_channel": n_parts[:, 1], "n_overbank_left": n_parts[:, 0],
+        "n_overbank_right": n_parts[:, 2],
         "n_source": src,
         "flow_area": a_ch, "perimeter": p_ch, "top_width": w_ch,
         "hyd_radius": r_ch, "hyd_depth": hd, "width_depth": safe_ratio(w_ch, hd),
         "velocity": vel, "discharge": q, "froude": manning.froude(vel, hd),
         "shear": manning.shear_stress(r_ch, slope),
         "stream_power": manning.unit_stream_power(q_parts[1], slope, w_ch),
-        "q_left": q_parts[0], "q_channel": q_parts[1], "q_right": q_parts[2],
+        "q_overbank_left": q_parts[0], "q_main_channel": q_parts[1],
+        "q_overbank_right": q_parts[2],
         "n_observed": n_obs,
     })
     figure_cols = ["bankfull_stage", "bankfull_depth", "flow_area", "perimeter", "top_width", "hyd_radius",
                    "hyd_depth", "width_depth", "velocity", "discharge", "froude", "shear",
-                   "stream_power", "q_left", "q_channel", "q_right"]
+                   "stream_power", "q_overbank_left", "q_main_channel", "q_overbank_right"]
     tr.loc[~ok, figure_cols] = np.nan
 
     # ---- rating curves (every transect, one array of depths) and the reach median curve
