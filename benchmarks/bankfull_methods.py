@@ -29,7 +29,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 
 from section_fixtures import compound_channel, trapezoid, v_valley  # noqa: E402
 
-from reachgauge.bankfull import AUTOMATIC_METHODS, candidate_stages, pick_bankfull  # noqa: E402
+from reachgauge.hydraulics.bankfull import AUTOMATIC_METHODS, candidate_stages, pick_bankfull  # noqa: E402
 
 SCENARIOS = {
     "clean": lambda s: compound_channel(seed=s),

@@ -17,7 +17,7 @@ CHILD = r"""
 import json, sys, time
 sys.path.insert(0, sys.argv[1])
 from reachgauge.config import RunConfig
-from reachgauge.pipeline import compute
+from reachgauge.batch.pipeline import compute
 cfg = RunConfig(dem=sys.argv[2], streams=sys.argv[3], half_width=30.0, jobs=int(sys.argv[4]))
 t = time.perf_counter()
 run = compute(cfg)

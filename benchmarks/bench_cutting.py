@@ -20,8 +20,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 from terrain_fixtures import make_valley_raster, meander_line, write_lines  # noqa: E402
 
 from reachgauge.config import RunConfig  # noqa: E402
-from reachgauge.cutting import cut_reach  # noqa: E402
-from reachgauge.network import load_network  # noqa: E402
+from reachgauge.transects.cutting import cut_reach  # noqa: E402
+from reachgauge.inputs.network import load_network  # noqa: E402
 
 
 def best_of(fn, repeat=3):

@@ -45,7 +45,7 @@ def main():
     t = best_of(reach, 3)
     print(f"reach, one at a time: 200 x 100 stages  {t * 1e3:8.2f} ms")
 
-    from reachgauge.profiles import ProfileSet
+    from reachgauge.kernel.profiles import ProfileSet
 
     z = np.array([s.elevation for s in sections])
     ps = ProfileSet(xs, z)

@@ -28,8 +28,9 @@ import numpy as np
 import pandas as pd
 import shapely
 
-from reachgauge import flags, schema
-from reachgauge.outputs import write_geopackage
+from reachgauge import flags
+from reachgauge.results import schema
+from reachgauge.results.geopackage import write_geopackage
 
 CRS = "EPSG:32633"
 B, Z, N, SLOPE = 4.0, 2.0, 0.035, 0.002
@@ -206,7 +207,7 @@ def _reach(j: int, rid: str, name: str, t: int):
 
 
 def result_layers(n_ok: int = 2, transects: int = 6, units: str = "si", bad: bool = True) -> dict:
-    """Every result layer, as :func:`reachgauge.outputs.build_layers` assembles
+    """Every result layer, as :func:`reachgauge.results.geopackage.build_layers` assembles
     them, for ``n_ok`` processed reaches (+ one with a bad status if ``bad``)."""
     names = [NAMES[j] if j < len(NAMES) else f"Reach {j + 1}" for j in range(n_ok)]
     built = [_reach(j, f"R{j + 1}", names[j], transects) for j in range(n_ok)]

@@ -27,7 +27,7 @@ from hypothesis import strategies as st
 from scipy.stats import median_abs_deviation
 
 from reachgauge import CrossSection
-from reachgauge.bankfull import (AUTOMATIC_METHODS, DEFAULT_METHOD, BankfullPick, baseflow_correct,
+from reachgauge.hydraulics.bankfull import (AUTOMATIC_METHODS, DEFAULT_METHOD, BankfullPick, baseflow_correct,
                                  candidate_stages, flat_thalweg_width, is_flat_thalweg,
                                  pick_bankfull, profile_noise, regional_coef_to_si, regional_depth,
                                  summarise_reach)

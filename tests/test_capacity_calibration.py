@@ -11,9 +11,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from reachgauge import calibration, capacity, roughness
+from reachgauge.hydraulics import calibration, capacity, roughness
 from reachgauge.errors import InputError
-from reachgauge.profiles import ProfileSet
+from reachgauge.kernel.profiles import ProfileSet
 
 
 def compound_set(t=4):

@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 
 from reachgauge import CrossSection
-from reachgauge.cli import main
+from reachgauge.cli.entry import main
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_data" / "gauged_section.csv"
 

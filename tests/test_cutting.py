@@ -30,10 +30,11 @@ import numpy as np
 import pytest
 import shapely
 
-from reachgauge import CrossSection, cutting, sampler
+from reachgauge import CrossSection
+from reachgauge.transects import cutting, sampler
 from reachgauge.config import RunConfig
-from reachgauge.cutting import ReachSections, cut_all, cut_reach
-from reachgauge.network import open_raster
+from reachgauge.transects.cutting import ReachSections, cut_all, cut_reach
+from reachgauge.inputs.network import open_raster
 from terrain_fixtures import make_valley_raster, meander_line, straight_line, warp_raster, write_lines
 
 B, H, Z = 8.0, 2.0, 2.0           # bottom width, bank height, side slope (H:V)

@@ -13,7 +13,7 @@ import numpy as np
 import pyogrio
 import pytest
 
-from reachgauge.cli import main
+from reachgauge.cli.entry import main
 
 BASIN = Path(__file__).resolve().parents[1] / "sample_data" / "basin"
 pytestmark = [pytest.mark.slow, pytest.mark.filterwarnings("ignore::RuntimeWarning")]

@@ -4,7 +4,8 @@ with a message that names the file, line and fix."""
 import numpy as np
 import pytest
 
-from reachgauge import config, tables
+from reachgauge import config
+from reachgauge.inputs import tables
 from reachgauge.errors import InputError
 from reachgauge.manning import FOOT
 

@@ -7,7 +7,7 @@ import numpy as np
 import rasterio
 from affine import Affine
 
-from reachgauge.landcover import classes_at
+from reachgauge.inputs.landcover import classes_at
 
 
 def write_classes(path, crs="EPSG:32633"):

@@ -13,7 +13,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from reachgauge import CrossSection
-from reachgauge.profiles import ProfileSet
+from reachgauge.kernel.profiles import ProfileSet
 
 
 def trapezoids(x, b, z, depth):

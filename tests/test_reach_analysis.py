@@ -15,7 +15,7 @@ import pytest
 import shapely
 
 from reachgauge.config import RunConfig
-from reachgauge.hydraulics import ReachInputs, analyse_reach
+from reachgauge.hydraulics.reach import ReachInputs, analyse_reach
 
 B, Z, H = 4.0, 1.0, 1.5      # bottom width, side slope (H:V), bank height (m)
 SLOPE = 0.002

@@ -32,7 +32,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from reachgauge import cli, flags, report
+from reachgauge.cli import entry as cli
+from reachgauge import flags
+from reachgauge.results import report
 from reachgauge.errors import InputError
 from reachgauge.notices import CAUTIONS
 from report_fixtures import BAD, FLOWS, NAMES, result_layers, write_result

@@ -7,7 +7,7 @@ copies of this table carry typos: two independent copies must agree.
 
 import pytest
 
-from reachgauge import roughness
+from reachgauge.hydraulics import roughness
 
 fluids_open_flow = pytest.importorskip("fluids.open_flow")
 

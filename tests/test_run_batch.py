@@ -18,8 +18,8 @@ import pytest
 import shapely
 
 import terrain_fixtures as tf
-from reachgauge import schema
-from reachgauge.cli import main
+from reachgauge.results import schema
+from reachgauge.cli.entry import main
 from reachgauge.manning import FOOT
 
 pytestmark = pytest.mark.filterwarnings("ignore::RuntimeWarning")
@@ -290,7 +290,7 @@ def test_run_level_input_errors_stop_before_the_work(valley, tmp_path, capsys, e
 
 def test_an_internal_error_in_one_reach_exits_1_and_keeps_the_rest(valley, tmp_path, capsys,
                                                                    monkeypatch):
-    from reachgauge import hydraulics
+    from reachgauge.hydraulics import reach as hydraulics
 
     real = hydraulics.analyse_reach
 

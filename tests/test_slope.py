@@ -13,9 +13,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from reachgauge import slope
+from reachgauge.transects import slope
 from reachgauge.config import RunConfig
-from reachgauge.cutting import cut_all
+from reachgauge.transects.cutting import cut_all
 from terrain_fixtures import make_valley_raster, straight_line, write_lines
 
 C = np.arange(0.0, 1000.0, 20.0)

@@ -11,7 +11,7 @@ import shapely
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from reachgauge import stations as S
+from reachgauge.transects import stations as S
 
 
 def test_stations_every_spacing_from_the_upstream_end_on_the_line():

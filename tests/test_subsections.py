@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from reachgauge import CrossSection, manning
-from reachgauge.roughness import horton_einstein
+from reachgauge.hydraulics.roughness import horton_einstein
 
 E = 1e-9  # vertical walls are leant by 1e-9 so offsets increase strictly
 

@@ -10,8 +10,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from reachgauge.config import RunConfig
-from reachgauge.cutting import cut_all
-from reachgauge.thalweg import find_thalweg
+from reachgauge.transects.cutting import cut_all
+from reachgauge.transects.thalweg import find_thalweg
 from terrain_fixtures import make_valley_raster, straight_line, write_lines
 
 U = np.linspace(-10, 10, 81)  # 0.25 m step

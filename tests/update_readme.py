@@ -7,7 +7,8 @@ tests/test_run_batch.py fails while the README and the code disagree.
 import re
 from pathlib import Path
 
-from reachgauge import config, flags, schema
+from reachgauge import config, flags
+from reachgauge.results import schema
 
 README = Path(__file__).resolve().parents[1] / "README.md"
 BLOCKS = {"options": config.markdown, "fields": schema.markdown, "codes": flags.markdown}

@@ -3,8 +3,8 @@ Manning discharge for stream reaches cut from a terrain raster."""
 
 __version__ = "0.1.0"
 
-from . import manning  # noqa: E402
-from .errors import InputError, ReachgaugeWarning  # noqa: E402
-from .section import CrossSection  # noqa: E402
+from reachgauge import manning  # noqa: E402
+from reachgauge.errors import InputError, ReachgaugeWarning  # noqa: E402
+from reachgauge.kernel.crosssection import CrossSection  # noqa: E402
 
 __all__ = ["CrossSection", "InputError", "ReachgaugeWarning", "manning", "__version__"]

@@ -19,8 +19,8 @@ from pathlib import Path
 
 import warnings
 
-from .errors import InputError, ReachgaugeWarning
-from .manning import FOOT
+from reachgauge.errors import InputError, ReachgaugeWarning
+from reachgauge.manning import FOOT
 
 
 def _f(default, group, help, length=False, **kw):
@@ -220,7 +220,7 @@ def validate(cfg: RunConfig) -> None:
     if (cfg.landcover is None) != (cfg.landcover_table is None):
         raise InputError("landcover and landcover-table go together",
                          "give both the land-cover raster and its class-to-n CSV")
-    from .roughness import check_n_range  # published ranges of n (Chow 1959, Table 5-6)
+    from reachgauge.hydraulics.roughness import check_n_range  # published ranges of n (Chow 1959, Table 5-6)
 
     for name in ("n", "n_overbank"):
         v = getattr(cfg, name)

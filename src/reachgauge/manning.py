@@ -20,7 +20,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import InputError
+from reachgauge.errors import InputError
 
 FOOT = 0.3048  # m, exact (international foot, 1959)
 

@@ -61,9 +61,9 @@ from rasterio.enums import Resampling
 from rasterio.vrt import WarpedVRT
 from shapely.ops import substring
 
-from . import sampler
-from .errors import InputError, ReachgaugeWarning
-from .manning import FOOT
+from reachgauge.transects import sampler
+from reachgauge.errors import InputError, ReachgaugeWarning
+from reachgauge.manning import FOOT
 
 # Ends of a line closer in height than this (m) leave its direction to the drawing.
 ORIENT_TOLERANCE = 0.1

@@ -17,7 +17,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .profiles import ProfileSet
+from reachgauge.kernel.profiles import ProfileSet
 
 
 def check_flows(ps: ProfileSet, flows: dict[str, float], slope, n, banks,

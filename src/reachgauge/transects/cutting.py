@@ -38,11 +38,11 @@ import numpy as np
 import pandas as pd
 import shapely
 
-from . import flags as F
-from . import sampler, slope, stations, thalweg
-from .errors import InputError
-from .network import Network, Reach, RasterInfo, load_network, open_raster
-from .section import CrossSection
+from reachgauge import flags as F
+from reachgauge.transects import sampler, slope, stations, thalweg
+from reachgauge.errors import InputError
+from reachgauge.inputs.network import Network, Reach, RasterInfo, load_network, open_raster
+from reachgauge.kernel.crosssection import CrossSection
 
 log = logging.getLogger(__name__)
 

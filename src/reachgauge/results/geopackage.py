@@ -14,8 +14,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from .errors import InputError
-from .manning import FOOT as FOOT_
+from reachgauge.errors import InputError
+from reachgauge.manning import FOOT as FOOT_
 
 
 def check_target(path, overwrite: bool) -> Path:
@@ -111,7 +111,7 @@ def build_layers(run, cfg) -> dict:
     import geopandas as gpd
     import shapely
 
-    from . import schema
+    from reachgauge.results import schema
 
     net = run.network
     work, source = net.work_crs, net.source_crs
@@ -207,10 +207,11 @@ def run_info(run, cfg) -> pd.DataFrame:
     import scipy
     import shapely
 
-    from . import __version__, schema
-    from .config import PATH_FIELDS
-    from .network import describe_file
-    from .notices import CAUTION_LINE
+    from reachgauge import __version__
+    from reachgauge.results import schema
+    from reachgauge.config import PATH_FIELDS
+    from reachgauge.inputs.network import describe_file
+    from reachgauge.notices import CAUTION_LINE
 
     rows = [("reachgauge_version", __version__), ("created_utc", time.strftime("%Y-%m-%dT%H:%M:%SZ",
                                                                            time.gmtime())),

@@ -14,7 +14,7 @@ import rasterio
 from pyproj import CRS, Transformer
 from rasterio.windows import Window
 
-from .errors import InputError
+from reachgauge.errors import InputError
 
 
 def classes_at(path, xy, work_crs) -> np.ndarray:

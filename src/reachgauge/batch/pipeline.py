@@ -17,10 +17,12 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from . import cutting, hydraulics, network as network_mod, roughness, tables
-from .config import RunConfig
-from .errors import InputError
-from .manning import FOOT
+from reachgauge.transects import cutting
+from reachgauge.hydraulics import reach as hydraulics, roughness
+from reachgauge.inputs import network as network_mod, tables
+from reachgauge.config import RunConfig
+from reachgauge.errors import InputError
+from reachgauge.manning import FOOT
 
 
 @dataclass
@@ -138,7 +140,7 @@ def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
             return ReachOutput(rid, None, base, error=rs.message if rs.status == "failed" else None,
                                seconds=time.perf_counter() - t0)
         if landcover is not None and inputs.class_table:
-            from .landcover import classes_at
+            from reachgauge.inputs.landcover import classes_at
 
             inputs.classes = classes_at(landcover, rs.sample_points(), raster.work_crs)
         res = hydraulics.analyse_reach(rs, cfg, inputs)
@@ -280,7 +282,7 @@ def summarise(run: RunResult, out=None, report=None) -> RunSummary:
         tr = o.result.transects
         transects += len(tr)
         transects_ok += int((tr["status"] == "ok").sum())
-        from .flags import has_quality_flag
+        from reachgauge.flags import has_quality_flag
 
         flagged += int(sum(has_quality_flag(f) for f in tr["flags"]))
         oob_t += int((tr["flows_out"] != "").sum())
@@ -298,7 +300,7 @@ def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, r
                 colour_by: str = "discharge", progress=None) -> RunSummary:
     """The whole batch: compute every reach, write the GeoPackage (atomically),
     optionally CSV copies of the tables and the HTML report."""
-    from . import outputs
+    from reachgauge.results import geopackage as outputs
 
     outputs.check_target(out, overwrite)          # fail before the work, not after
     if report is not None:
@@ -309,7 +311,7 @@ def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, r
     if csv_dir is not None:
         outputs.write_csv_dir(csv_dir, layers, overwrite=overwrite)
     if report is not None:
-        from .report import write_report
+        from reachgauge.results.report import write_report
 
         write_report(out, report, colour_by=colour_by, overwrite=overwrite)
     return summarise(run, Path(out), None if report is None else Path(report))

@@ -25,8 +25,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import brentq
 
-from . import manning
-from .errors import InputError
+from reachgauge import manning
+from reachgauge.errors import InputError
 
 # Stages are evaluated in blocks of at most this many (stage, segment) cells so a
 # long profile and a long rating curve never build a huge temporary array.

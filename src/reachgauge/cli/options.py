@@ -10,8 +10,8 @@ import time
 import typing
 from pathlib import Path
 
-from ..config import RunConfig, fields_by_group, from_mapping, read_toml
-from ..errors import InputError
+from reachgauge.config import RunConfig, fields_by_group, from_mapping, read_toml
+from reachgauge.errors import InputError
 
 GROUP_TITLES = {
     "inputs": "inputs and units",

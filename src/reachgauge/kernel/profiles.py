@@ -20,8 +20,8 @@ import numpy as np
 import pandas as pd
 from scipy.optimize import elementwise
 
-from . import manning
-from .section import Geometry, clip_at_water, safe_ratio
+from reachgauge import manning
+from reachgauge.kernel.crosssection import Geometry, clip_at_water, safe_ratio
 
 _BLOCK_CELLS = 3_000_000
 

@@ -64,10 +64,10 @@ import numpy as np
 from scipy.signal import find_peaks
 from scipy.stats import median_abs_deviation
 
-from .config import BANKFULL_METHODS
-from .errors import InputError
-from .manning import FOOT
-from .section import CrossSection
+from reachgauge.config import BANKFULL_METHODS
+from reachgauge.errors import InputError
+from reachgauge.manning import FOOT
+from reachgauge.kernel.crosssection import CrossSection
 
 AUTOMATIC_METHODS = ("bank-top", "min-width-depth", "bench", "max-hydraulic-depth")
 USER_METHODS = ("fixed-depth", "regional")

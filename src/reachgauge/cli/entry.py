@@ -9,9 +9,9 @@ import argparse
 import sys
 import warnings
 
-from . import __version__
-from .errors import InputError, ReachgaugeWarning
-from .notices import CAUTION_LINE
+from reachgauge import __version__
+from reachgauge.errors import InputError, ReachgaugeWarning
+from reachgauge.notices import CAUTION_LINE
 
 
 class _Parser(argparse.ArgumentParser):
@@ -37,7 +37,7 @@ def build_parser() -> argparse.ArgumentParser:
                     "discharge for stream reaches cut from a terrain raster. " + CAUTION_LINE)
     parser.add_argument("--version", action="version", version=f"reachgauge {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
-    from .commands import demo, report, run, section
+    from reachgauge.cli import demo, report, run, section
 
     for cmd in (run, demo, report, section):
         cmd.add(sub)

@@ -6,9 +6,9 @@ import argparse
 import textwrap
 from pathlib import Path
 
-from ..errors import InputError
-from ..notices import CAUTION_LINE
-from .options import Progress
+from reachgauge.errors import InputError
+from reachgauge.notices import CAUTION_LINE
+from reachgauge.cli.options import Progress
 
 DEMO_DIR = Path(__file__).resolve().parents[3] / "sample_data" / "basin"
 
@@ -30,8 +30,8 @@ def add(sub):
 
 
 def run(args) -> int:
-    from ..config import from_mapping, read_toml
-    from ..pipeline import run_to_file
+    from reachgauge.config import from_mapping, read_toml
+    from reachgauge.batch.pipeline import run_to_file
 
     cfg_path = DEMO_DIR / "config.toml"
     if not cfg_path.is_file():

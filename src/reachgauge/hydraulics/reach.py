@@ -17,9 +17,11 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from . import calibration, capacity, flags, manning, roughness, schema
-from .profiles import ProfileSet
-from .section import CrossSection, safe_ratio
+from reachgauge.hydraulics import calibration, capacity, roughness
+from reachgauge import flags, manning
+from reachgauge.results import schema
+from reachgauge.kernel.profiles import ProfileSet
+from reachgauge.kernel.crosssection import CrossSection, safe_ratio
 
 def figures(section: CrossSection, stage, slope: float, n, units: str = "si") -> pd.DataFrame:
     """Every hydraulic figure at each stage, one row per stage.
@@ -61,7 +63,7 @@ class ReachInputs:
     """What a reach needs besides its sections (all SI).
 
     ``flows``: design flows {name: m³/s}; ``observations``: this reach's rows of
-    :func:`reachgauge.tables.read_observations`; ``cowan``: Cowan terms of all
+    :func:`reachgauge.inputs.tables.read_observations`; ``cowan``: Cowan terms of all
     reaches; ``classes``: (t, n) land-cover classes sampled on the transects;
     ``class_table``: class → n.
     """
@@ -98,7 +100,7 @@ def _pick_all(x, z, ok, cfg, drainage_area):
     points on the ground line change nothing) so the corrected parabolic bed
     keeps its area on the shared grid.
     """
-    from . import bankfull as _bankfull  # the bankfull step is not needed by figures()
+    from reachgauge.hydraulics import bankfull as _bankfull  # the bankfull step is not needed by figures
 
     picks = [None] * z.shape[0]
     if cfg.baseflow_depth > 0:
@@ -152,7 +154,7 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
     # ---- bankfull
     area_km2 = _drainage_area(cfg, reach.attributes)
     if cfg.bankfull_method == "regional" and area_km2 is None:
-        from .errors import InputError
+        from reachgauge.errors import InputError
         raise InputError(f"reach {rid}: drainage-area field {cfg.drainage_area_field!r} has no "
                          "positive value", "fill the field, or pick another bankfull method")
     x0 = x  # the sampling grid (land-cover classes are on it)
@@ -166,7 +168,7 @@ def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
     bf_depth = bf_stage - ps.thalweg
     banks = np.array([[p.left_bank, p.right_bank] if p else [x[0], x[-1]] for p in picks])
     banks = np.where(np.isfinite(banks), banks, np.array([x[0], x[-1]]))
-    from . import bankfull as _bankfull
+    from reachgauge.hydraulics import bankfull as _bankfull
 
     summary = _bankfull.summarise_reach(np.where(ok, bf_depth, np.nan)[ok], bf_stage[ok])
     outlier = np.zeros(t, bool)

@@ -13,8 +13,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .errors import InputError
-from .manning import FOOT
+from reachgauge.errors import InputError
+from reachgauge.manning import FOOT
 
 DESIGN_COLUMNS = ("reach_id", "flow", "discharge")
 OBS_COLUMNS = ("reach_id", "discharge")

@@ -7,8 +7,8 @@ import textwrap
 import sys
 from pathlib import Path
 
-from ..notices import CAUTION_LINE
-from .options import Progress, add_config_options, config_from_args, raise_if_missing
+from reachgauge.notices import CAUTION_LINE
+from reachgauge.cli.options import Progress, add_config_options, config_from_args, raise_if_missing
 
 EXAMPLE = """\
 examples:
@@ -52,7 +52,7 @@ def add(sub):
 
 
 def run(args) -> int:
-    from ..pipeline import run_to_file
+    from reachgauge.batch.pipeline import run_to_file
 
     cfg = config_from_args(args)
     raise_if_missing(cfg)

@@ -14,7 +14,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .manning import FOOT
+from reachgauge.manning import FOOT
 
 # factor from SI to US customary for each kind
 TO_US = {"length": 1 / FOOT, "area": 1 / FOOT ** 2, "velocity": 1 / FOOT,

@@ -7,9 +7,9 @@ import textwrap
 import sys
 from pathlib import Path
 
-from .. import __version__
-from ..errors import InputError
-from ..notices import CAUTION_LINE
+from reachgauge import __version__
+from reachgauge.errors import InputError
+from reachgauge.notices import CAUTION_LINE
 
 
 def _fmt(v, digits=4):
@@ -69,10 +69,11 @@ def add(sub):
 def run(args) -> int:
     import numpy as np
 
-    from .. import hydraulics, manning, roughness
-    from ..outputs import write_csv_atomic
-    from ..profile_csv import read_profile
-    from ..section import CrossSection
+    from reachgauge.hydraulics import reach as hydraulics, roughness
+    from reachgauge import manning
+    from reachgauge.results.geopackage import write_csv_atomic
+    from reachgauge.inputs.profile_csv import read_profile
+    from reachgauge.kernel.crosssection import CrossSection
 
     u = manning.unit_system(args.units)
     cs, kind = read_profile(args.profile, args.stage if args.stage is not None else None)

@@ -13,8 +13,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .errors import InputError
-from .section import CrossSection
+from reachgauge.errors import InputError
+from reachgauge.kernel.crosssection import CrossSection
 
 OFFSET_NAMES = ("offset", "station", "distance")
 ELEVATION_NAMES = ("elevation", "elev", "z")

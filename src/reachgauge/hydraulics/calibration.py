@@ -19,8 +19,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from . import manning
-from .profiles import ProfileSet
+from reachgauge import manning
+from reachgauge.kernel.profiles import ProfileSet
 
 
 def match_transects(obs: pd.DataFrame, chainage: np.ndarray, lines=None) -> np.ndarray:

@@ -6,7 +6,7 @@ import argparse
 import textwrap
 from pathlib import Path
 
-from ..notices import CAUTION_LINE
+from reachgauge.notices import CAUTION_LINE
 
 
 def add(sub):
@@ -28,7 +28,7 @@ def add(sub):
 
 
 def run(args) -> int:
-    from ..report import write_report
+    from reachgauge.results.report import write_report
 
     out = args.out or args.result.with_suffix(".html")
     write_report(args.result, out, colour_by=args.colour_by, overwrite=args.overwrite)

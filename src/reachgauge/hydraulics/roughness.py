@@ -31,7 +31,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import InputError, ReachgaugeWarning
+from reachgauge.errors import InputError, ReachgaugeWarning
 
 # Chow (1959), Table 5-6; our short keys, Chow's wording in ``text``.
 # (key, text, (min, normal, max))

@@ -27,11 +27,11 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from . import flags as flagcodes
-from . import schema
-from .errors import InputError
-from .notices import CAUTION_LINE, CAUTIONS
-from .report_figures import (DPI, INK, NO_VALUE, PALETTE, _crs_unit, _f, _new_figure, _num,  # noqa: F401
+from reachgauge import flags as flagcodes
+from reachgauge.results import schema
+from reachgauge.errors import InputError
+from reachgauge.notices import CAUTION_LINE, CAUTIONS
+from reachgauge.results.report_figures import (DPI, INK, NO_VALUE, PALETTE, _crs_unit, _f, _new_figure, _num,  # noqa: F401
                              _png, _profile_png, _rating_png, _scale_bar, _sections_png, _truthy,
                              colour_map, line_parts, scale_length)
 
@@ -48,11 +48,11 @@ def write_report(result_gpkg, out_html, *, colour_by: str = "discharge",
     """Read a result GeoPackage and write its HTML report to ``out_html``.
 
     The file is written beside the target and renamed into place when done
-    (:class:`reachgauge.outputs.atomic_path`); an existing file is kept unless
+    (:class:`reachgauge.results.geopackage.atomic_path`); an existing file is kept unless
     ``overwrite``. Bad input (missing file, not a reachgauge result, unknown
     ``colour_by``) is an :class:`~reachgauge.errors.InputError`.
     """
-    from .outputs import atomic_path, check_target
+    from reachgauge.results.geopackage import atomic_path, check_target
 
     out = check_target(out_html, overwrite)   # fail before the work, not after
     src = Path(result_gpkg)

@@ -1,0 +1,2 @@
+"""Running the job over every reach: tasks, executors (serial, process pool,
+Dask) and the run summary."""

@@ -1,1 +1,0 @@
-"""One module per command; each a thin layer over the Python API."""

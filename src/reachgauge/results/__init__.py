@@ -1,0 +1,1 @@
+"""The output edge: the result schema, GeoPackage and CSV writers, the report."""
