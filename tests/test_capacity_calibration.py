@@ -13,7 +13,7 @@ import pytest
 
 from reachgauge.hydraulics import calibration, capacity, roughness
 from reachgauge.errors import InputError
-from reachgauge.kernel.profiles import ProfileSet
+from reachgauge.kernel import sections as K
 
 
 def compound_set(t=4):
@@ -21,14 +21,14 @@ def compound_set(t=4):
     x = np.linspace(0, 30, 301)
     z = np.interp(x, [0, 0.01, 11.5, 13, 17, 18.5, 29.99, 30], [3, 1.5, 1.5, 0, 0, 1.5, 1.5, 3])
     zz = np.tile(z, (t, 1)) + np.arange(t)[:, None] * 0.1
-    return ProfileSet(x, zz), np.tile([11.5, 18.5], (t, 1))
+    return K.profiles(x, zz), np.tile([11.5, 18.5], (t, 1))
 
 
 def test_design_flow_equal_to_bankfull_gives_zero_freeboard():
     ps, banks = compound_set()
     bf_stage = ps.thalweg + 1.5
     n = (0.06, 0.035, 0.06)
-    q_bf = ps.discharge(bf_stage, 0.002, n, banks)
+    q_bf = K.flow(ps, bf_stage, 0.002, n, banks).discharge[:, 0]
     # one design flow per transect equal to its own bankfull discharge
     for i in range(ps.count):
         checks = capacity.check_flows(ps.take([i]), {"qbf": float(q_bf[i])}, 0.002, n, banks[i:i + 1],
@@ -42,7 +42,7 @@ def test_flows_above_and_below_bankfull():
     ps, banks = compound_set()
     bf_stage = ps.thalweg + 1.5
     n = (0.06, 0.035, 0.06)
-    q_bf = ps.discharge(bf_stage, 0.002, n, banks)
+    q_bf = K.flow(ps, bf_stage, 0.002, n, banks).discharge[:, 0]
     checks = capacity.check_flows(ps, {"low": 0.5 * q_bf.min(), "high": 2.0 * q_bf.max(),
                                        "huge": 1e5}, 0.002, n, banks, bf_stage, q_bf)
     by = {k: g for k, g in checks.groupby("flow")}
@@ -60,8 +60,8 @@ def test_calibration_round_trip(depth):
     n_true = 0.042
     n_ob = np.tile([0.07, 0.08], (ps.count, 1))
     stage = ps.thalweg + depth
-    q = ps.discharge(stage, 0.0015, np.column_stack([n_ob[:, 0], np.full(ps.count, n_true),
-                                                     n_ob[:, 1]]), banks)
+    q = K.flow(ps, stage, 0.0015, np.column_stack([n_ob[:, 0], np.full(ps.count, n_true),
+                                                   n_ob[:, 1]]), banks).discharge[:, 0]
     n_back = calibration.back_calculate(ps, np.arange(ps.count), stage, q,
                                         np.full(ps.count, 0.0015), n_ob, banks)
     np.testing.assert_allclose(n_back, n_true, rtol=1e-10)

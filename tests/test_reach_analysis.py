@@ -15,10 +15,15 @@ import pytest
 import shapely
 
 from reachgauge.config import RunConfig
-from reachgauge.hydraulics.reach import ReachInputs, analyse_reach
+from reachgauge.hydraulics.reach import ReachInputs, ReachParams, analyse_reach
 
 B, Z, H = 4.0, 1.0, 1.5      # bottom width, side slope (H:V), bank height (m)
 SLOPE = 0.002
+
+
+def _analyse(rs, cfg, inputs=None):
+    """The hydraulics step with the parameters a RunConfig sets."""
+    return analyse_reach(rs, ReachParams.from_config(cfg), inputs)
 
 
 def fake_reach(t=10, step=0.5, half=15.0, bad=(7,)):
@@ -51,7 +56,7 @@ def closed_form_q(y, n):
 
 
 def test_bank_top_finds_the_known_bank_height():
-    res = analyse_reach(fake_reach(), RunConfig(n=0.035))
+    res = _analyse(fake_reach(), RunConfig(n=0.035))
     ok = res.transects[res.transects.status == "ok"]
     # bank-top on a clean compound section: within 5 cm (its stage step is a few mm;
     # it reports the stage where the water has spread halfway onto the plain)
@@ -62,7 +67,7 @@ def test_bank_top_finds_the_known_bank_height():
 def test_bankfull_figures_match_closed_form():
     # fixed-depth 1.2 m: in bank, so the trapezoid closed form holds exactly
     rs = fake_reach()
-    res = analyse_reach(rs, RunConfig(n=0.035, bankfull_method="fixed-depth", bankfull_depth=1.2))
+    res = _analyse(rs, RunConfig(n=0.035, bankfull_method="fixed-depth", bankfull_depth=1.2))
     tr = res.transects
     ok = tr[tr.status == "ok"]
     assert ok.bankfull_depth.to_numpy() == pytest.approx(1.2, abs=1e-9)
@@ -79,7 +84,7 @@ def test_bankfull_figures_match_closed_form():
 
 
 def test_rating_curves_monotone_and_reach_median_present():
-    res = analyse_reach(fake_reach(), RunConfig(n=0.035, rating_step=0.05))
+    res = _analyse(fake_reach(), RunConfig(n=0.035, rating_step=0.05))
     r = res.rating
     for st, grp in r.groupby("station"):
         assert grp.sort_values("depth")["discharge"].is_monotonic_increasing, st
@@ -89,9 +94,9 @@ def test_rating_curves_monotone_and_reach_median_present():
 
 def test_design_flows_freeboard_and_out_of_bank():
     rs = fake_reach()
-    first = analyse_reach(rs, RunConfig(n=0.035))
-    q_bf = float(first.transects.discharge.iloc[0])
-    res = analyse_reach(rs, RunConfig(n=0.035), ReachInputs(flows={"qbf": q_bf, "big": 5 * q_bf}))
+    first = _analyse(rs, RunConfig(n=0.035))
+    q_bf = float(first.transects.discharge_total.iloc[0])  # what fills it to the bankfull stage
+    res = _analyse(rs, RunConfig(n=0.035), ReachInputs(flows={"qbf": q_bf, "big": 5 * q_bf}))
     d = res.design
     row = d[(d.station == 0) & (d.flow == "qbf")].iloc[0]
     assert row.freeboard == pytest.approx(0.0, abs=1e-6)
@@ -107,7 +112,7 @@ def test_calibration_recovers_n_and_applies_it():
     n_true, y = 0.045, 1.0
     obs = pd.DataFrame({"reach_id": ["R1"], "chainage": [41.0], "x": [np.nan], "y": [np.nan],
                         "stage": [np.nan], "depth": [y], "discharge": [closed_form_q(y, n_true)]})
-    res = analyse_reach(rs, RunConfig(n=0.035, calibrate=True), ReachInputs(observations=obs))
+    res = _analyse(rs, RunConfig(n=0.035, calibrate=True), ReachInputs(observations=obs))
     cal = res.calibration.iloc[0]
     assert cal.station == 2 and cal.n_back == pytest.approx(n_true, rel=1e-9)
     assert res.reach["n_calibrated"] == pytest.approx(n_true, rel=1e-9)
@@ -119,25 +124,25 @@ def test_calibration_recovers_n_and_applies_it():
 def test_user_stages_and_baseflow_correction():
     rs = fake_reach()
     cfg = RunConfig(n=0.035, depths=(0.5,), elevations=(100.5,))
-    res = analyse_reach(rs, cfg)
+    res = _analyse(rs, cfg)
     s = res.stages[res.stages.station == 0]
     d05 = s[s.request == "depth 0.5"].iloc[0]
     assert d05.flow_area == pytest.approx((B + Z * 0.5) * 0.5, rel=1e-9)
     e = s[s.request == "elevation 100.5"].iloc[0]
     assert e.depth == pytest.approx(0.5)
-    more = analyse_reach(rs, RunConfig(n=0.035, baseflow_depth=0.3))
+    more = _analyse(rs, RunConfig(n=0.035, baseflow_depth=0.3))
     assert (more.transects.flow_area.dropna() > res.transects.flow_area.dropna() + 0.3).all()
 
 
 def test_min_freeboard_is_unknown_when_a_flow_has_no_stage():
     rs = fake_reach()
-    q_bf = float(analyse_reach(rs, RunConfig(n=0.035)).transects.discharge.iloc[0])
+    q_bf = float(_analyse(rs, RunConfig(n=0.035)).transects.discharge.iloc[0])
     # 1e7 m³/s is carried by no stage up to three times the profile's depth; it comes
     # first, so a later flow must not overwrite the unknown
-    res = analyse_reach(rs, RunConfig(n=0.035), ReachInputs(flows={"absurd": 1e7, "half": 0.5 * q_bf}))
+    res = _analyse(rs, RunConfig(n=0.035), ReachInputs(flows={"absurd": 1e7, "half": 0.5 * q_bf}))
     ok = res.transects[res.transects.status == "ok"]
     assert ok.min_freeboard.isna().all()
-    only = analyse_reach(rs, RunConfig(n=0.035), ReachInputs(flows={"half": 0.5 * q_bf}))
+    only = _analyse(rs, RunConfig(n=0.035), ReachInputs(flows={"half": 0.5 * q_bf}))
     d = only.design[(only.design.station >= 0)].set_index("station")
     ok = only.transects[only.transects.status == "ok"].set_index("station")
     np.testing.assert_allclose(ok.min_freeboard, d.loc[ok.index, "freeboard"])

@@ -143,7 +143,7 @@ def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
             from reachgauge.inputs.landcover import classes_at
 
             inputs.classes = classes_at(landcover, rs.sample_points(), raster.work_crs)
-        res = hydraulics.analyse_reach(rs, cfg, inputs)
+        res = hydraulics.analyse_reach(rs, hydraulics.ReachParams.from_config(cfg), inputs)
         return ReachOutput(rid, res, res.reach, transect_lines=list(rs.transects),
                            thalweg_xy=np.asarray(rs.thalweg_xy), offsets=np.asarray(rs.offsets),
                            seconds=time.perf_counter() - t0)

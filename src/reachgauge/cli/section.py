@@ -69,7 +69,7 @@ def add(sub):
 def run(args) -> int:
     import numpy as np
 
-    from reachgauge.hydraulics import reach as hydraulics, roughness
+    from reachgauge.hydraulics import figures as hydraulics, roughness
     from reachgauge import manning
     from reachgauge.results.geopackage import write_csv_atomic
     from reachgauge.inputs.profile_csv import read_profile

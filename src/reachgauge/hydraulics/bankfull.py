@@ -632,3 +632,92 @@ def baseflow_correct(section: CrossSection, depth=None, area=None,
     xo = np.concatenate([x[:a], xn, x[b + 1:]])
     zo = np.concatenate([z[:a], zn, z[b + 1:]])
     return CrossSection(xo, zo, banks=section.banks)
+
+
+# ------------------------------------------------------------ every transect at once
+@dataclass(frozen=True)
+class BankfullParams:
+    """What the bankfull step needs (lengths m, areas km²).
+
+    method: one of :data:`reachgauge.config.BANKFULL_METHODS`; fixed_depth for
+    "fixed-depth"; regional_coef, regional_exp for "regional" (depth = coef × DA^exp);
+    baseflow_depth: water under the terrain's water surface to add back (0: none).
+    """
+
+    method: str = DEFAULT_METHOD
+    fixed_depth: float | None = None
+    regional_coef: float | None = None
+    regional_exp: float | None = None
+    baseflow_depth: float = 0.0
+
+
+@dataclass(frozen=True)
+class Picks:
+    """Bankfull picks of t transects, as arrays (see :class:`BankfullPick`).
+
+    stage, depth, left_bank, right_bank, tolerance, noise, break_rise (t,) m, NaN
+    where the profile is invalid; confidence, fallback (t,) str ("" where invalid);
+    flags: t tuples of codes; candidates (t, 4) stages of :data:`AUTOMATIC_METHODS`;
+    method: the method asked for; profiles: the profiles the picks were made on
+    (after any baseflow correction), which every later step uses.
+    """
+
+    stage: np.ndarray
+    depth: np.ndarray
+    left_bank: np.ndarray
+    right_bank: np.ndarray
+    confidence: np.ndarray
+    flags: list
+    candidates: np.ndarray
+    fallback: np.ndarray
+    tolerance: np.ndarray
+    noise: np.ndarray
+    break_rise: np.ndarray
+    method: str
+    profiles: object
+
+
+def pick_all(p, params: BankfullParams, drainage_area_km2=None) -> Picks:
+    """Bankfull pick of every valid profile of ``p``
+    (:class:`~reachgauge.kernel.sections.Profiles`) by ``params.method``, after the
+    optional baseflow correction; see :func:`pick_bankfull` for methods and
+    confidence."""
+    from reachgauge.kernel import sections as K
+
+    t = p.count
+    xs, zs = [], []
+    picks = [None] * t
+    for i in range(t):
+        n = int(p.size[i])
+        x, z = p.x[i, :n], p.z[i, :n]
+        if n >= 3:
+            cs = CrossSection._trusted(x, z)
+            if params.baseflow_depth > 0:
+                cs = baseflow_correct(cs, depth=params.baseflow_depth)
+            x, z = cs.offset, cs.elevation
+            picks[i] = pick_bankfull(cs, params.method, fixed_depth=params.fixed_depth,
+                                     drainage_area_km2=drainage_area_km2,
+                                     regional_coef=params.regional_coef,
+                                     regional_exp=params.regional_exp)
+        xs.append(x)
+        zs.append(z)
+    m = max([len(x) for x in xs] + [1])
+    xa = np.full((t, m), np.nan)
+    za = np.full((t, m), np.nan)
+    for i, (x, z) in enumerate(zip(xs, zs)):
+        xa[i, :len(x)], za[i, :len(z)] = x, z
+    prof = K.profiles(xa, za)
+
+    def arr(attr, fill=np.nan):
+        return np.array([getattr(q, attr) if q else fill for q in picks], dtype=float)
+
+    return Picks(
+        stage=arr("stage"), depth=arr("depth"), left_bank=arr("left_bank"),
+        right_bank=arr("right_bank"),
+        confidence=np.array([q.confidence if q else "" for q in picks], dtype=object),
+        flags=[q.flags if q else () for q in picks],
+        candidates=np.array([[q.candidates[k] for k in AUTOMATIC_METHODS] if q
+                             else [np.nan] * len(AUTOMATIC_METHODS) for q in picks]).reshape(t, -1),
+        fallback=np.array([q.fallback if q else "" for q in picks], dtype=object),
+        tolerance=arr("tolerance"), noise=arr("noise"), break_rise=arr("break_rise"),
+        method=params.method, profiles=prof)

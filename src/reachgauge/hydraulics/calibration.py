@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 
 from reachgauge import manning
-from reachgauge.kernel.profiles import ProfileSet
+from reachgauge.kernel import sections as K
 
 
 def match_transects(obs: pd.DataFrame, chainage: np.ndarray, lines=None) -> np.ndarray:
@@ -40,7 +40,7 @@ def match_transects(obs: pd.DataFrame, chainage: np.ndarray, lines=None) -> np.n
     return idx
 
 
-def back_calculate(ps: ProfileSet, index: np.ndarray, stage: np.ndarray, discharge: np.ndarray,
+def back_calculate(p: K.Profiles, index: np.ndarray, stage: np.ndarray, discharge: np.ndarray,
                    slope: np.ndarray, n_overbank: np.ndarray, banks: np.ndarray) -> np.ndarray:
     """Channel n at each observation (NaN where the overbanks alone carry the
     measured discharge, the stage is dry, or no transect matched).
@@ -52,19 +52,20 @@ def back_calculate(ps: ProfileSet, index: np.ndarray, stage: np.ndarray, dischar
     index = np.asarray(index, dtype=int)
     out = np.full(index.size, np.nan)
     use = (index >= 0)
-    use[use] &= ps.valid[index[use]]
+    use[use] &= p.valid[index[use]]
     if not use.any():
         return out
     rows = index[use]
-    sub = ps.take(rows)
-    parts = sub.subsections(np.asarray(stage, dtype=float)[use], np.asarray(banks)[rows])
-    r = parts.hydraulic_radius
+    sub = p.take(rows)
+    pt = K.parts(sub, K.wet(sub, np.asarray(stage, dtype=float)[use]), np.asarray(banks)[rows])
+    area = pt.area[:, :, 0]
+    r = pt.hydraulic_radius[:, :, 0]
     sq = np.sqrt(np.asarray(slope, dtype=float)[rows])
     nob = np.asarray(n_overbank, dtype=float)[rows]
-    k_over = (manning.conveyance(parts.area[0], r[0], nob[:, 0])
-              + manning.conveyance(parts.area[2], r[2], nob[:, 1]))
+    k_over = (manning.conveyance(area[0], r[0], nob[:, 0])
+              + manning.conveyance(area[2], r[2], nob[:, 1]))
     rest = np.asarray(discharge, dtype=float)[use] - sq * k_over
-    a_ch, r_ch = parts.area[1], r[1]
+    a_ch, r_ch = area[1], r[1]
     ok = (a_ch > 0) & (rest > 0)
     with np.errstate(divide="ignore", invalid="ignore"):
         n = np.where(ok, a_ch * np.power(r_ch, 2.0 / 3.0) * sq / np.where(ok, rest, 1.0), np.nan)

@@ -1,15 +1,17 @@
 """Design flows against channel capacity.
 
-For each design discharge and every transect of a reach: the normal-depth
-stage (Manning, uniform flow; Chow 1959, §6-2), its depth, the freeboard to
-the bankfull stage (bankfull stage minus design stage: negative when the flow
-is out of bank), the ratio of design to bankfull discharge, and a flag where
-the flow leaves the channel. All transects of a reach are solved at once
-(:meth:`reachgauge.profiles.ProfileSet.stage_for_discharge`).
+For each design discharge and every transect of a reach: the normal-depth stage
+(Manning, steady uniform flow; Chow 1959, §6-2), its depth, the freeboard to the
+bankfull stage (bankfull stage minus design stage: negative when the flow is out of
+bank), the ratio of design to bankfull discharge, and a flag where the flow leaves
+the channel. All transects and all flows of a reach are solved in one call of
+:func:`reachgauge.kernel.solver.normal_stage` with the ``"walled"`` policy: a flow
+that overtops a transect's end gets a stage counting only the water inside the
+transect, an upper bound where the plain goes on, marked ``over_profile``.
 
-Per reach, a flow "leaves the channel" when it exceeds the reach's median
-bankfull discharge (ratio > 1); the share of transects out of bank is given
-beside it so a reader sees whether that is local or general.
+Per reach, a flow "leaves the channel" when it exceeds the reach's median bankfull
+discharge (ratio > 1); the share of transects out of bank is given beside it so a
+reader sees whether that is local or general.
 """
 
 from __future__ import annotations
@@ -17,44 +19,46 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from reachgauge.kernel.profiles import ProfileSet
+from reachgauge.kernel import sections as K
+from reachgauge.kernel.solver import normal_stage
+
+CHECK_COLUMNS = ["flow", "discharge", "stage", "depth", "freeboard", "q_ratio", "out_of_bank",
+                 "over_profile", "index"]
 
 
-def check_flows(ps: ProfileSet, flows: dict[str, float], slope, n, banks,
+def check_flows(p: K.Profiles, flows: dict[str, float], slope, n, banks,
                 bankfull_stage, bankfull_q) -> pd.DataFrame:
     """One row per (flow, transect): ``flow``, ``discharge`` (m³/s), ``stage``,
     ``depth``, ``freeboard`` (m), ``q_ratio``, ``out_of_bank`` (bool),
-    ``over_profile`` (bool: the water overtops an end of the transect; its
-    stage counts only the water inside the transect, an upper bound where the
-    plain continues, and NaN if even three times the profile's depth cannot
-    carry the flow)."""
-    rows = []
-    bf_stage = np.asarray(bankfull_stage, dtype=float)
-    bf_q = np.asarray(bankfull_q, dtype=float)
-    grid = ps.discharge_grid(slope, n, banks) if flows else None
-    for name, q in flows.items():
-        stage, reached = ps.stage_for_discharge(q, slope, n, banks, grid=grid)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = np.where(bf_q > 0, q / np.where(bf_q > 0, bf_q, 1.0), np.nan)
-        freeboard = bf_stage - stage
-        rows.append(pd.DataFrame({
-            "flow": name,
-            "discharge": float(q),
-            "stage": stage,
-            "depth": stage - ps.thalweg,
-            "freeboard": freeboard,
-            "q_ratio": ratio,
-            # a stage a hair above bankfull from round-off is not out of bank
-            "out_of_bank": (~reached) | (freeboard < -1e-6),
-            # over the transect's ends: the stage counts only the water inside the
-            # transect, an upper bound if the plain goes on (or unknown if not reached)
-            "over_profile": (~reached) | (stage > ps.top + 1e-9),
-            "index": np.arange(ps.count),
-        }))
-    if not rows:
-        return pd.DataFrame(columns=["flow", "discharge", "stage", "depth", "freeboard", "q_ratio",
-                                     "out_of_bank", "over_profile", "index"])
-    return pd.concat(rows, ignore_index=True)
+    ``over_profile`` (bool: the water overtops an end of the transect; its stage
+    counts only the water inside the transect, an upper bound where the plain
+    continues, and NaN if even three times the profile's depth cannot carry the
+    flow), ``index`` (transect)."""
+    if not flows:
+        return pd.DataFrame(columns=CHECK_COLUMNS)
+    names = list(flows)
+    q = np.array([float(flows[k]) for k in names])
+    t = p.count
+    sol = normal_stage(p, np.broadcast_to(q, (t, q.size)), slope, n, banks, above="walled")
+    bf_stage = np.asarray(bankfull_stage, dtype=float)[:, None]
+    bf_q = np.asarray(bankfull_q, dtype=float)[:, None]
+    freeboard = bf_stage - sol.stage
+    ratio = np.where(bf_q > 0, q[None, :] / np.where(bf_q > 0, bf_q, 1.0), np.nan)
+    # a stage a hair above bankfull from round-off is not out of bank
+    out = (~sol.reached) | (freeboard < -1e-6)
+    over = (~sol.reached) | sol.over_profile
+    f = q.size
+    return pd.DataFrame({
+        "flow": np.repeat(np.array(names, dtype=object), t),
+        "discharge": np.repeat(q, t),
+        "stage": sol.stage.T.ravel(),
+        "depth": (sol.stage - p.thalweg[:, None]).T.ravel(),
+        "freeboard": freeboard.T.ravel(),
+        "q_ratio": np.broadcast_to(ratio, (t, f)).T.ravel(),
+        "out_of_bank": out.T.ravel(),
+        "over_profile": over.T.ravel(),
+        "index": np.tile(np.arange(t), f),
+    })
 
 
 def summarise_flows(checks: pd.DataFrame, bankfull_q_median: float, ok: np.ndarray) -> pd.DataFrame:
@@ -69,3 +73,13 @@ def summarise_flows(checks: pd.DataFrame, bankfull_q_median: float, ok: np.ndarr
         out.append({"flow": name, "discharge": q, "q_ratio": ratio, "share_out": share,
                     "out_of_bank": bool(np.isfinite(ratio) and ratio > 1.0)})
     return pd.DataFrame(out, columns=["flow", "discharge", "q_ratio", "share_out", "out_of_bank"])
+
+
+def least_freeboard(checks: pd.DataFrame, t: int) -> np.ndarray:
+    """Least freeboard over the flows at each of ``t`` transects (m); NaN where a
+    flow has no stage (not carried even far above the transect) or there is no flow."""
+    idx = checks["index"].to_numpy(int)
+    fb = checks["freeboard"].to_numpy(float)
+    least = np.full(t, np.inf)
+    np.minimum.at(least, idx, np.where(np.isfinite(fb), fb, -np.inf))
+    return np.where(np.isfinite(least), least, np.nan)

@@ -1,13 +1,12 @@
-"""Hydraulic figures of a section at one or many stages.
+"""The hydraulics step of one reach: bankfull, roughness, calibration, bankfull
+figures, rating curves, user stages and design flows, for all its transects at once.
 
-One function, :func:`figures`, turns a :class:`~reachgauge.section.CrossSection`,
-an array of stages, a slope and Manning's n into a table of every figure the
-tool reports. All stages are one vectorised computation.
-
-Methods: Manning's equation (Chow 1959, Eq. 5-6); with bank offsets, the
-divided-channel method (Chow 1959, §6-9) and velocity as Q / A; Froude number
-on hydraulic depth; boundary shear gamma R S; unit stream power gamma Q S / w
-(Bagnold 1966). See :mod:`reachgauge.manning`.
+:func:`analyse_reach` takes the sections cut from the terrain
+(:class:`~reachgauge.transects.cutting.ReachSections`), the reach's share of the
+run's tables (:class:`ReachInputs`) and the parameters of each step
+(:class:`ReachParams`), and returns plain tables (:class:`ReachResult`, SI). Each
+step is one function below over the arrays of the reach; the geometry of every step
+comes from the section kernel (:mod:`reachgauge.kernel.sections`).
 """
 
 from __future__ import annotations
@@ -17,45 +16,37 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from reachgauge.hydraulics import calibration, capacity, roughness
-from reachgauge import flags, manning
+from reachgauge import flags
+from reachgauge.errors import InputError
+from reachgauge.hydraulics import bankfull, calibration, capacity, rating, roughness
+from reachgauge.hydraulics.figures import section_figures
+from reachgauge.kernel import sections as K
 from reachgauge.results import schema
-from reachgauge.kernel.profiles import ProfileSet
-from reachgauge.kernel.crosssection import CrossSection, safe_ratio
-
-def figures(section: CrossSection, stage, slope: float, n, units: str = "si") -> pd.DataFrame:
-    """Every hydraulic figure at each stage, one row per stage.
-
-    ``stage``: scalar or 1-D array of water-surface elevations (m or ft).
-    ``n``: one Manning's n, or (left overbank, channel, right overbank) for a
-    section with banks. Columns are those of
-    :data:`reachgauge.schema.SECTION_FIELDS` (the batch's rating-curve fields
-    plus hydraulic depth and stream power).
-    """
-    st = np.atleast_1d(np.asarray(stage, dtype=float))
-    geo = section.geometry(st)
-    q = section.discharge(st, slope, n, units)
-    v = safe_ratio(q, geo.area)
-    r = geo.hydraulic_radius
-    return pd.DataFrame({
-        "stage": st,
-        "depth": geo.depth,
-        "flow_area": geo.area,
-        "perimeter": geo.wetted_perimeter,
-        "top_width": geo.top_width,
-        "hyd_radius": r,
-        "hyd_depth": geo.hydraulic_depth,
-        "velocity": v,
-        "discharge": q,
-        "froude": manning.froude(v, geo.hydraulic_depth, units),
-        "shear": manning.shear_stress(r, slope, units),
-        "stream_power": manning.unit_stream_power(q, slope, geo.top_width, units),
-        "spills": geo.spills,
-    })
 
 
-# ====================================================== a whole reach at once
+@dataclass(frozen=True)
+class ReachParams:
+    """Parameters of the hydraulics steps (SI)."""
 
+    bankfull: bankfull.BankfullParams = field(default_factory=bankfull.BankfullParams)
+    roughness: roughness.RoughnessParams = field(default_factory=roughness.RoughnessParams)
+    rating: rating.RatingParams = field(default_factory=rating.RatingParams)
+    min_slope: float = 1e-4
+    calibrate: bool = False
+    drainage_area_field: str | None = None
+
+    @classmethod
+    def from_config(cls, cfg) -> "ReachParams":
+        """The parameters a :class:`reachgauge.config.RunConfig` sets."""
+        return cls(
+            bankfull=bankfull.BankfullParams(cfg.bankfull_method, cfg.bankfull_depth,
+                                             cfg.regional_coef, cfg.regional_exp,
+                                             cfg.baseflow_depth),
+            roughness=roughness.RoughnessParams(cfg.n, cfg.n_overbank, cfg.n_field),
+            rating=rating.RatingParams(cfg.rating_step, cfg.rating_max_depth,
+                                       tuple(cfg.depths), tuple(cfg.elevations)),
+            min_slope=cfg.min_slope, calibrate=cfg.calibrate,
+            drainage_area_field=cfg.drainage_area_field)
 
 
 @dataclass
@@ -63,8 +54,8 @@ class ReachInputs:
     """What a reach needs besides its sections (all SI).
 
     ``flows``: design flows {name: m³/s}; ``observations``: this reach's rows of
-    :func:`reachgauge.inputs.tables.read_observations`; ``cowan``: Cowan terms of all
-    reaches; ``classes``: (t, n) land-cover classes sampled on the transects;
+    :func:`reachgauge.inputs.tables.read_observations`; ``cowan``: Cowan terms by
+    reach; ``classes``: (t, n) land-cover classes sampled on the transects;
     ``class_table``: class → n.
     """
 
@@ -77,7 +68,7 @@ class ReachInputs:
 
 @dataclass
 class ReachResult:
-    """Plain tables for one reach (SI); fields as in :mod:`reachgauge.schema`."""
+    """Plain tables for one reach (SI); fields as in :mod:`reachgauge.results.schema`."""
 
     reach: dict
     transects: pd.DataFrame
@@ -87,303 +78,209 @@ class ReachResult:
     calibration: pd.DataFrame
     profile: pd.DataFrame
     banks: np.ndarray = None          # (t, 2) bank offsets, for plots
-    sections_z: np.ndarray = None     # (t, n) elevations used (after any baseflow correction)
-    offsets: np.ndarray = None        # (n,) offsets of sections_z
+    sections_z: np.ndarray = None     # (t, m) elevations used (after any baseflow correction), NaN-padded
+    offsets: np.ndarray = None        # (t, m) offsets of sections_z, NaN-padded
 
 
-def _pick_all(x, z, ok, cfg, drainage_area):
-    """Bankfull pick on every valid transect (one call per transect, each
-    vectorised over its trial stages), after the optional baseflow correction.
-
-    Returns the picks, the offsets and the elevations to compute with. With a
-    baseflow correction the common offset grid is refined four times (linear
-    points on the ground line change nothing) so the corrected parabolic bed
-    keeps its area on the shared grid.
-    """
-    from reachgauge.hydraulics import bankfull as _bankfull  # the bankfull step is not needed by figures
-
-    picks = [None] * z.shape[0]
-    if cfg.baseflow_depth > 0:
-        fine = np.interp(np.arange(4 * (x.size - 1) + 1) / 4.0, np.arange(x.size), x)
-        zz = np.full((z.shape[0], fine.size), np.nan)
-    else:
-        fine, zz = x, z.copy()
-    for i in np.nonzero(ok)[0]:
-        cs = CrossSection(x, z[i], drop_nan=True)
-        if cfg.baseflow_depth > 0:
-            cs = _bankfull.baseflow_correct(cs, depth=cfg.baseflow_depth)
-            inside = (fine >= cs.offset[0]) & (fine <= cs.offset[-1])
-            zz[i] = np.where(inside, np.interp(fine, cs.offset, cs.elevation), np.nan)
-        picks[i] = _bankfull.pick_bankfull(
-            cs, cfg.bankfull_method, fixed_depth=cfg.bankfull_depth,
-            drainage_area_km2=drainage_area, regional_coef=cfg.regional_coef,
-            regional_exp=cfg.regional_exp)
-    return picks, fine, zz
-
-
-def _drainage_area(cfg, attributes):
-    if cfg.bankfull_method != "regional":
+def _drainage_area(params: ReachParams, rid, attributes):
+    if params.bankfull.method != "regional":
         return None
-    v = attributes.get(cfg.drainage_area_field)
     try:
-        v = float(v)
+        v = float(attributes.get(params.drainage_area_field))
     except (TypeError, ValueError):
         v = float("nan")
-    return v if np.isfinite(v) and v > 0 else None
+    if not (np.isfinite(v) and v > 0):
+        raise InputError(f"reach {rid}: drainage-area field {params.drainage_area_field!r} has "
+                         "no positive value", "fill the field, or pick another bankfull method")
+    return v
 
 
-def analyse_reach(rs, cfg, inputs: ReachInputs | None = None) -> ReachResult:
-    """Bankfull stage, hydraulics, rating curves, design-flow checks and
-    calibration for one reach's sections (the output of the transects step).
+def _bankfull_figures(p, picks, slope, n, ok):
+    """Figures at the bankfull stage of the channel between the banks (vertical
+    lines at the bank offsets; Chow 1959, §6-9): an automatic pick sits where the
+    water has begun to spread onto the plain, so the whole water surface would count
+    a strip of floodplain as channel. The overbank strips' discharges are beside."""
+    st = np.where(ok, picks.stage, p.thalweg)
+    banks = np.column_stack([picks.left_bank, picks.right_bank])
+    fl = K.flow(p, st, slope, n, banks)
+    a, per, w = fl.parts.area[1, :, 0], fl.parts.wetted_perimeter[1, :, 0], fl.parts.top_width[1, :, 0]
+    q = fl.part_discharge[:, :, 0]
+    fig = section_figures(a, per, w, q[1], slope)
+    cols = {"bankfull_stage": picks.stage, "bankfull_depth": picks.stage - p.thalweg,
+            "flow_area": a, "perimeter": per, "top_width": w, "hyd_radius": fig["hyd_radius"],
+            "hyd_depth": fig["hyd_depth"], "width_depth": K.safe_ratio(w, fig["hyd_depth"]),
+            "velocity": fig["velocity"], "discharge": q[1], "froude": fig["froude"],
+            "shear": fig["shear"], "stream_power": fig["stream_power"],
+            "q_overbank_left": q[0], "q_overbank_right": q[2], "discharge_total": q.sum(axis=0)}
+    return {k: np.where(ok, v, np.nan) for k, v in cols.items()}
 
-    ``rs`` is a :class:`reachgauge.cutting.ReachSections`; ``cfg`` a
-    :class:`reachgauge.config.RunConfig`. Everything is SI. Transects that are
-    not ``ok`` keep their row with empty figures.
-    """
-    inputs = inputs or ReachInputs()
-    reach = rs.reach
-    rid = str(reach.reach_id)
-    t = len(rs.chainage)
-    x = np.asarray(rs.offsets, dtype=float)
-    status = np.asarray(rs.transect_status, dtype=object).copy()
-    tflags = [list(filter(None, str(f).split(";"))) for f in rs.transect_flags]
-    ok = status == "ok"
-    slope = np.asarray(rs.slope, dtype=float)
-    slope = np.where(np.isfinite(slope) & (slope > 0), slope, cfg.min_slope)
 
-    # ---- bankfull
-    area_km2 = _drainage_area(cfg, reach.attributes)
-    if cfg.bankfull_method == "regional" and area_km2 is None:
-        from reachgauge.errors import InputError
-        raise InputError(f"reach {rid}: drainage-area field {cfg.drainage_area_field!r} has no "
-                         "positive value", "fill the field, or pick another bankfull method")
-    x0 = x  # the sampling grid (land-cover classes are on it)
-    picks, x, z = _pick_all(x, np.asarray(rs.elevations, dtype=float), ok, cfg, area_km2)
-    ps = ProfileSet(x, z)
-    ok &= ps.valid
-    for i in range(t):
-        if picks[i] is not None:
-            tflags[i].extend(picks[i].flags)
-    bf_stage = np.array([p.stage if p else np.nan for p in picks])
-    bf_depth = bf_stage - ps.thalweg
-    banks = np.array([[p.left_bank, p.right_bank] if p else [x[0], x[-1]] for p in picks])
-    banks = np.where(np.isfinite(banks), banks, np.array([x[0], x[-1]]))
-    from reachgauge.hydraulics import bankfull as _bankfull
-
-    summary = _bankfull.summarise_reach(np.where(ok, bf_depth, np.nan)[ok], bf_stage[ok])
-    outlier = np.zeros(t, bool)
-    outlier[np.nonzero(ok)[0]] = summary.outliers
-    for i in np.nonzero(outlier)[0]:
-        tflags[i].append("bankfull-outlier")
-    spread = np.array([
-        (np.nanmax(list(p.candidates.values())) - np.nanmin(list(p.candidates.values())))
-        if p and np.isfinite(list(p.candidates.values())).any() else np.nan for p in picks])
-
-    # ---- roughness
-    n_ch, n_src = roughness.reach_channel_n(rid, reach.attributes, default=cfg.n,
-                                            n_field=cfg.n_field, cowan_terms=inputs.cowan)
-    n_parts = np.tile([cfg.n_overbank or n_ch, n_ch, cfg.n_overbank or n_ch], (t, 1)).astype(float)
-    src = np.full(t, n_src, dtype=object)
-    if inputs.classes is not None and inputs.class_table:
-        lc, unknown = roughness.subsection_n_from_classes(inputs.classes, x0, banks,
-                                                          inputs.class_table, n_ch)
-        n_parts[:, 0], n_parts[:, 2] = lc[:, 0], lc[:, 2]
-        if n_src == "default":  # land cover sets the channel n unless a reach value does
-            n_parts[:, 1] = lc[:, 1]
-        src = np.where(src == "default", "landcover", src + "+landcover")
-        for i in np.nonzero(unknown)[0]:
-            tflags[i].append("n-unknown-class")
-
-    # ---- calibration
-    cal = pd.DataFrame(columns=list(schema.CALIBRATION_FIELDS))
+def _calibrate(p, rs, obs, slope, n, banks, ok, rid):
+    """Back-calculated channel n at each observation; returns the calibration table,
+    the n observed at each transect (NaN elsewhere) and the reach median."""
+    t = p.count
     n_obs = np.full(t, np.nan)
-    n_cal = np.nan
-    obs = inputs.observations
-    if obs is not None and len(obs) and ok.any():
-        idx = calibration.match_transects(obs, np.asarray(rs.chainage, float), rs.transects)
-        idx = np.where((idx >= 0) & ok[np.clip(idx, 0, t - 1)], idx, -1)
-        th = ps.thalweg[np.clip(idx, 0, t - 1)]
-        stage_obs = np.where(obs["stage"].notna(), obs["stage"], th + obs["depth"].to_numpy(float))
-        n_back = calibration.back_calculate(ps, idx, stage_obs, obs["discharge"].to_numpy(float),
-                                            slope, n_parts[:, [0, 2]], banks)
-        cal = pd.DataFrame({
-            "reach_id": rid, "station": idx,
-            "chainage": np.where(idx >= 0, np.asarray(rs.chainage, float)[np.clip(idx, 0, t - 1)],
-                                 np.nan),
-            "stage": stage_obs, "depth": stage_obs - th, "discharge": obs["discharge"].to_numpy(float),
-            "n_back": n_back,
-            "table_rows": [";".join(k for k, _t, _v in roughness.table_matches(v, kind="channel"))
-                           if np.isfinite(v) else "" for v in n_back],
-        })
-        for i, v in zip(idx, n_back):
-            if i >= 0 and np.isfinite(v):
-                n_obs[i] = v
-        if np.isfinite(n_back).any():
-            n_cal = float(np.nanmedian(n_back))
-            if cfg.calibrate:
-                n_parts[:, 1] = n_cal
-                src = np.full(t, "calibrated", dtype=object)
-    for i in range(t):
-        if n_parts[i, 1] < roughness.TABLE_RANGE[0] or n_parts[i, 1] > roughness.TABLE_RANGE[1]:
-            tflags[i].append("n-unusual")
-
-    # ---- figures at bankfull: the channel between the banks (vertical lines at the
-    # bank offsets; Chow 1959, §6-9). An automatic pick sits where the water has
-    # begun to spread onto the plain, so the whole water surface would count a
-    # strip of floodplain as channel width; the discharge is the total
-    # (divided-channel method), with the overbank shares given beside it.
-    st = np.where(ok, bf_stage, ps.thalweg)
-    parts = ps.subsections(st, banks)
-    rp = parts.hydraulic_radius
-    q_parts = np.stack([manning.conveyance(parts.area[k], rp[k], n_parts[:, k]) for k in range(3)])
-    q_parts = q_parts * np.sqrt(slope)
-    q = q_parts.sum(axis=0)
-    a_ch, p_ch, w_ch, r_ch = parts.area[1], parts.wetted_perimeter[1], parts.top_width[1], rp[1]
-    hd = safe_ratio(a_ch, w_ch)
-    vel = safe_ratio(q_parts[1], a_ch)
-    tr = pd.DataFrame({
-        "reach_id": rid, "station": np.arange(t), "chainage": np.asarray(rs.chainage, float),
-        "status": status, "flags": [flags.join(f) for f in tflags],
-        "thalweg_z": ps.thalweg, "thalweg_shift": np.asarray(rs.thalweg_shift, float),
-        "slope": slope,
-        "bankfull_method": [p.method if p else "" for p in picks],
-        "confidence": [p.confidence if p else "" for p in picks],
-        "bankfull_stage": bf_stage, "bankfull_depth": bf_depth,
-        "bank_left": banks[:, 0], "bank_right": banks[:, 1], "method_spread": spread,
-        "n_channel": n_parts[:, 1], "n_overbank_left": n_parts[:, 0],
-        "n_overbank_right": n_parts[:, 2],
-        "n_source": src,
-        "flow_area": a_ch, "perimeter": p_ch, "top_width": w_ch,
-        "hyd_radius": r_ch, "hyd_depth": hd, "width_depth": safe_ratio(w_ch, hd),
-        "velocity": vel, "discharge": q, "froude": manning.froude(vel, hd),
-        "shear": manning.shear_stress(r_ch, slope),
-        "stream_power": manning.unit_stream_power(q_parts[1], slope, w_ch),
-        "q_overbank_left": q_parts[0], "q_main_channel": q_parts[1],
-        "q_overbank_right": q_parts[2],
-        "n_observed": n_obs,
+    if obs is None or not len(obs) or not ok.any():
+        return pd.DataFrame(columns=list(schema.CALIBRATION_FIELDS)), n_obs, np.nan
+    idx = calibration.match_transects(obs, np.asarray(rs.chainage, float), rs.transects)
+    idx = np.where((idx >= 0) & ok[np.clip(idx, 0, t - 1)], idx, -1)
+    th = p.thalweg[np.clip(idx, 0, t - 1)]
+    stage_obs = np.where(obs["stage"].notna(), obs["stage"], th + obs["depth"].to_numpy(float))
+    n_back = calibration.back_calculate(p, idx, stage_obs, obs["discharge"].to_numpy(float),
+                                        slope, n[:, [0, 2]], banks)
+    chain = np.asarray(rs.chainage, float)
+    cal = pd.DataFrame({
+        "reach_id": rid, "station": idx,
+        "chainage": np.where(idx >= 0, chain[np.clip(idx, 0, t - 1)], np.nan),
+        "stage": stage_obs, "depth": stage_obs - th, "discharge": obs["discharge"].to_numpy(float),
+        "n_back": n_back,
+        "table_rows": [";".join(k for k, _t, _v in roughness.table_matches(v, kind="channel"))
+                       if np.isfinite(v) else "" for v in n_back],
     })
-    figure_cols = ["bankfull_stage", "bankfull_depth", "flow_area", "perimeter", "top_width", "hyd_radius",
-                   "hyd_depth", "width_depth", "velocity", "discharge", "froude", "shear",
-                   "stream_power", "q_overbank_left", "q_main_channel", "q_overbank_right"]
-    tr.loc[~ok, figure_cols] = np.nan
+    good = (idx >= 0) & np.isfinite(n_back)
+    n_obs[idx[good]] = n_back[good]
+    return cal, n_obs, (float(np.nanmedian(n_back)) if good.any() else np.nan)
 
-    # ---- rating curves (every transect, one array of depths) and the reach median curve
-    med_depth = summary.median_depth if np.isfinite(summary.median_depth) else 1.0
-    max_depth = cfg.rating_max_depth or max(2.0 * med_depth, cfg.rating_step)
-    depths = np.arange(0.0, max_depth + 0.5 * cfg.rating_step, cfg.rating_step)
-    rating = _curve_table(ps, rid, rs.chainage, ps.thalweg[:, None] + depths[None, :], slope,
-                          n_parts, banks, ok)
-    if ok.any():
-        med = rating[rating.station.isin(np.nonzero(ok)[0])].groupby("depth", sort=True).median(
-            numeric_only=True).reset_index()
-        med["reach_id"], med["station"], med["chainage"] = rid, -1, np.nan
-        med["stage"] = float(np.median(ps.thalweg[ok])) + med["depth"]
-        med["spills"] = False
-        rating = pd.concat([rating, med[rating.columns]], ignore_index=True)
 
-    # ---- user stages
-    stage_rows = []
-    for d in cfg.depths:
-        stage_rows.append((f"depth {d:g}", ps.thalweg + d))
-    for e in cfg.elevations:
-        stage_rows.append((f"elevation {e:g}", np.full(t, float(e))))
-    stages = _stage_table(ps, rid, rs.chainage, stage_rows, slope, n_parts, banks, ok)
-
-    # ---- design flows
-    checks = capacity.check_flows(ps, inputs.flows, slope, n_parts, banks, bf_stage, q)
-    checks = checks[ok[checks["index"].to_numpy()]] if len(checks) else checks
+def _design(p, rid, chainage, flows, slope, n, banks, bf, ok):
+    """Design-flow rows per transect and per reach, and the per-transect results."""
+    # a design flow is compared with what fills the section to the bankfull stage
+    checks = capacity.check_flows(p, flows, slope, n, banks, bf["bankfull_stage"],
+                                  bf["discharge_total"])
+    checks = checks[ok[checks["index"].to_numpy(int)]] if len(checks) else checks
     design = checks.rename(columns={"index": "station"})
     design.insert(0, "reach_id", rid)
-    design["chainage"] = np.asarray(rs.chainage, float)[design["station"].to_numpy(int)] \
-        if len(design) else []
-    q_med = float(np.nanmedian(q[ok])) if ok.any() else np.nan
+    design["chainage"] = np.asarray(chainage, float)[design["station"].to_numpy(int)]
+    q_med = _nanmedian(bf["discharge_total"][ok])
     reach_flows = capacity.summarise_flows(checks, q_med, ok)
     if len(reach_flows):
         rf = reach_flows.copy()
         rf["reach_id"], rf["station"], rf["chainage"] = rid, -1, np.nan
         design = pd.concat([design, rf], ignore_index=True)
-    # least freeboard over the flows; a flow with no stage (not carried even far
-    # above the transect) makes it unknown, NaN, as does having no flow at all
-    idx = checks["index"].to_numpy(int)
-    fb = checks["freeboard"].to_numpy(float)
-    min_fb = np.full(t, np.inf)
-    np.minimum.at(min_fb, idx, np.where(np.isfinite(fb), fb, -np.inf))
+    return design, checks, reach_flows
+
+
+def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) -> ReachResult:
+    """Bankfull stage, hydraulics, rating curves, design-flow checks and calibration
+    for one reach's sections. Everything is SI. Transects that are not ``ok`` keep
+    their row with empty figures."""
+    inputs = inputs or ReachInputs()
+    reach = rs.reach
+    rid = str(reach.reach_id)
+    t = len(rs.chainage)
+    tflags = [list(filter(None, str(f).split(";"))) for f in rs.transect_flags]
+    slope = np.asarray(rs.slope, dtype=float)
+    slope = np.where(np.isfinite(slope) & (slope > 0), slope, params.min_slope)
+
+    area_km2 = _drainage_area(params, rid, reach.attributes)
+    ok = np.asarray(rs.transect_status, dtype=object) == "ok"
+    z = np.where(ok[:, None], np.asarray(rs.elevations, dtype=float), np.nan)
+    picks = bankfull.pick_all(K.profiles(rs.offsets, z), params.bankfull, area_km2)
+    p = picks.profiles
+    ok &= p.valid
+    banks = np.column_stack([picks.left_bank, picks.right_bank])
+    banks = np.where(np.isfinite(banks), banks, np.column_stack([p.first_offset, p.last_offset]))
+    for i in range(t):
+        tflags[i].extend(picks.flags[i])
+    summary = bankfull.summarise_reach(picks.depth[ok], picks.stage[ok])
+    outlier = np.zeros(t, bool)
+    outlier[np.nonzero(ok)[0]] = summary.outliers
+
+    n, n_src, unknown = roughness.transect_n(
+        rid, reach.attributes, t, params.roughness, cowan_terms=inputs.cowan,
+        classes=inputs.classes, class_offsets=rs.offsets, class_table=inputs.class_table,
+        banks=banks)
+    cal, n_obs, n_cal = _calibrate(p, rs, inputs.observations, slope, n, banks, ok, rid)
+    if params.calibrate and np.isfinite(n_cal):
+        n[:, 1] = n_cal
+        n_src = np.full(t, "calibrated", dtype=object)
+    unusual = (n[:, 1] < roughness.TABLE_RANGE[0]) | (n[:, 1] > roughness.TABLE_RANGE[1])
+    for code, mask in (("bankfull-outlier", outlier), ("n-unknown-class", unknown),
+                       ("n-unusual", unusual)):
+        for i in np.nonzero(mask)[0]:
+            tflags[i].append(code)
+
+    bf = _bankfull_figures(p, picks, slope, n, ok)
+    depths = rating.rating_depths(params.rating, summary.median_depth)
+    curves = rating.rating_table(p, rid, rs.chainage, depths, slope, n, banks, ok)
+    stages = rating.stage_table(p, rid, rs.chainage, params.rating, slope, n, banks, ok)
+    design, checks, reach_flows = _design(p, rid, rs.chainage, inputs.flows, slope, n, banks,
+                                          bf, ok)
     out_names = [[] for _ in range(t)]
-    for i, flow, out, over in zip(idx, checks["flow"], checks["out_of_bank"],
+    for i, flow, out, over in zip(checks["index"], checks["flow"], checks["out_of_bank"],
                                   checks["over_profile"]):
         if out:
             out_names[i].append(flow)
             tflags[i].append("out-of-bank")
         if over:
             tflags[i].append("over-profile")
-    tr["min_freeboard"] = np.where(np.isfinite(min_fb), min_fb, np.nan)
-    tr["flows_out"] = [";".join(v) for v in out_names]
-    tr["flags"] = [flags.join(f) for f in tflags]
 
-    # ---- reach summary
-    pick_conf = np.array([p.confidence if p else "" for p in picks])
-    okq = q[ok]
-    reach_row = {
-        "reach_id": rid, "name": reach.name or "", "status": rs.status, "message": rs.message,
-        "orientation": reach.orientation, "reach_length": reach.length_m, "transects": t,
-        "transects_ok": int(ok.sum()), "transects_flagged": int(sum(flags.has_quality_flag(f) for f in tr["flags"])),
-        "slope": rs.reach_slope, "slope_flags": getattr(rs, "slope_flags", ""),
-        "bankfull_depth": summary.median_depth, "depth_spread": summary.iqr,
-        "top_width": _nanmedian(w_ch[ok]), "flow_area": _nanmedian(a_ch[ok]),
-        "discharge": q_med,
-        "discharge_p25": float(np.nanpercentile(okq, 25)) if okq.size else np.nan,
-        "discharge_p75": float(np.nanpercentile(okq, 75)) if okq.size else np.nan,
-        "velocity": _nanmedian(vel[ok]),
-        "n_channel": float(np.median(n_parts[ok, 1])) if ok.any() else n_ch,
-        "n_source": src[0] if t else n_src, "n_calibrated": n_cal,
-        "confidence_low": int(((pick_conf == "low") & ok).sum()), "outliers": int(outlier.sum()),
-        "flows_out": ";".join(reach_flows.loc[reach_flows.out_of_bank, "flow"]) if len(reach_flows)
-        else "",
-        "worst_ratio": float(reach_flows["q_ratio"].max()) if len(reach_flows) else np.nan,
-    }
+    cand = picks.candidates
+    with np.errstate(invalid="ignore"):
+        spread = np.where(np.isfinite(cand).any(axis=1),
+                          np.nanmax(np.where(np.isfinite(cand), cand, -np.inf), axis=1)
+                          - np.nanmin(np.where(np.isfinite(cand), cand, np.inf), axis=1), np.nan)
+    tr = pd.DataFrame({
+        "reach_id": rid, "station": np.arange(t), "chainage": np.asarray(rs.chainage, float),
+        "status": np.asarray(rs.transect_status, dtype=object), "flags": "",
+        "thalweg_z": _thalweg_z(rs, p, ok), "thalweg_shift": np.asarray(rs.thalweg_shift, float),
+        "slope": slope,
+        "bankfull_method": np.where(picks.confidence != "", picks.method, ""),
+        "confidence": picks.confidence,
+        "bank_left": banks[:, 0], "bank_right": banks[:, 1], "method_spread": spread,
+        "n_channel": n[:, 1], "n_overbank_left": n[:, 0], "n_overbank_right": n[:, 2],
+        "n_source": n_src, **bf, "n_observed": n_obs,
+        "min_freeboard": capacity.least_freeboard(checks, t),
+        "flows_out": [";".join(v) for v in out_names],
+    })
+    tr["flags"] = [flags.join(f) for f in tflags]
+    tr = tr[[c for c in schema.TRANSECT_FIELDS if c in tr.columns]]
+    reach_row = _reach_row(rs, tr, ok, summary, n, n_src, n_cal, picks, outlier, reach_flows)
     profile = rs.profile.copy()
     profile.insert(0, "reach_id", rid)
-    return ReachResult(reach=reach_row, transects=tr, rating=rating, stages=stages, design=design,
-                       calibration=cal, profile=profile, banks=banks, sections_z=z,
-                       offsets=x)
+    inside = np.arange(p.x.shape[1])[None, :] < p.size[:, None]
+    return ReachResult(reach=reach_row, transects=tr, rating=curves, stages=stages, design=design,
+                       calibration=cal, profile=profile, banks=banks,
+                       sections_z=np.where(inside, p.z, np.nan), offsets=np.where(inside, p.x, np.nan))
+
+
+def _reach_row(rs, tr, ok, summary, n, n_src, n_cal, picks, outlier, reach_flows) -> dict:
+    reach = rs.reach
+    q = tr["discharge"].to_numpy(float)[ok]
+    has_flows = len(reach_flows) > 0
+    return {
+        "reach_id": str(reach.reach_id), "name": reach.name or "", "status": rs.status,
+        "message": rs.message, "orientation": reach.orientation, "reach_length": reach.length_m,
+        "transects": len(tr), "transects_ok": int(ok.sum()),
+        "transects_flagged": int(sum(flags.has_quality_flag(f) for f in tr["flags"])),
+        "slope": rs.reach_slope, "slope_flags": getattr(rs, "slope_flags", ""),
+        "bankfull_depth": summary.median_depth, "depth_spread": summary.iqr,
+        "top_width": _nanmedian(tr["top_width"].to_numpy(float)[ok]),
+        "flow_area": _nanmedian(tr["flow_area"].to_numpy(float)[ok]),
+        "discharge": _nanmedian(q),
+        "discharge_p25": float(np.nanpercentile(q, 25)) if q.size else np.nan,
+        "discharge_p75": float(np.nanpercentile(q, 75)) if q.size else np.nan,
+        "velocity": _nanmedian(tr["velocity"].to_numpy(float)[ok]),
+        "n_channel": float(np.median(n[ok, 1])) if ok.any() else float(n[0, 1]) if len(n) else np.nan,
+        "n_source": n_src[0] if len(n_src) else "", "n_calibrated": n_cal,
+        "confidence_low": int(((picks.confidence == "low") & ok).sum()),
+        "outliers": int(outlier.sum()),
+        "flows_out": ";".join(reach_flows.loc[reach_flows.out_of_bank, "flow"]) if has_flows else "",
+        "worst_ratio": float(reach_flows["q_ratio"].max()) if has_flows else np.nan,
+    }
+
+
+def _thalweg_z(rs, p, ok):
+    """Thalweg elevation of each transect: the section's where it has one, else the
+    lowest sample of the transect (NaN where it has none)."""
+    z = np.asarray(rs.elevations, dtype=float)
+    has = np.isfinite(z).any(axis=1) if z.size else np.zeros(len(ok), bool)
+    with np.errstate(invalid="ignore"):
+        low = np.where(has, np.nanmin(np.where(np.isfinite(z), z, np.inf), axis=1), np.nan) \
+            if z.size else np.full(len(ok), np.nan)
+    return np.where(ok, p.thalweg, low)
 
 
 def _nanmedian(v):
     v = np.asarray(v, dtype=float)
     return float(np.nanmedian(v)) if np.isfinite(v).any() else float("nan")
-
-
-def _curve_table(ps, rid, chainage, stages, slope, n_parts, banks, ok):
-    rows = np.nonzero(ok)[0]
-    if rows.size == 0:
-        return pd.DataFrame(columns=list(schema.RATING_FIELDS))
-    sub = ps.take(rows)
-    st = stages[rows]
-    geo = sub.geometry(st)
-    q = sub.discharge(st, slope[rows], n_parts[rows], banks[rows])
-    m = st.shape[1]
-    return pd.DataFrame({
-        "reach_id": rid, "station": np.repeat(rows, m),
-        "chainage": np.repeat(np.asarray(chainage, float)[rows], m),
-        "stage": st.ravel(), "depth": geo.depth.ravel(), "flow_area": geo.area.ravel(),
-        "perimeter": geo.wetted_perimeter.ravel(), "top_width": geo.top_width.ravel(),
-        "hyd_radius": geo.hydraulic_radius.ravel(), "velocity": safe_ratio(q, geo.area).ravel(),
-        "discharge": q.ravel(), "spills": geo.spills.ravel(),
-    })
-
-
-def _stage_table(ps, rid, chainage, requests, slope, n_parts, banks, ok):
-    if not requests:
-        return pd.DataFrame(columns=["reach_id", "station", "chainage", "request", "stage"])
-    labels = [r[0] for r in requests]
-    st = np.stack([r[1] for r in requests], axis=1)         # (t, k)
-    tab = _curve_table(ps, rid, chainage, st, slope, n_parts, banks, ok)
-    if len(tab) == 0:
-        return tab
-    k = len(labels)
-    tab.insert(3, "request", np.tile(labels, int(ok.sum())))
-    hd = safe_ratio(tab["flow_area"], tab["top_width"])
-    tab["froude"] = manning.froude(tab["velocity"].to_numpy(), hd)
-    sl = np.repeat(slope[ok], k)
-    tab["shear"] = manning.shear_stress(tab["hyd_radius"].to_numpy(), sl)
-    return tab

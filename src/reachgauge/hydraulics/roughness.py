@@ -284,3 +284,41 @@ def reach_channel_n(reach_id: str, attributes: dict, *, default: float, n_field=
         if np.isfinite(v) and v > 0:
             return v, "field"
     return float(default), "default"
+
+
+# --------------------------------------------------------- n of every transect
+@dataclass(frozen=True)
+class RoughnessParams:
+    """Where a reach's n comes from: ``n`` the default channel n; ``n_overbank``
+    the overbanks' (None: the channel's); ``n_field`` a streams field of channel n."""
+
+    n: float = 0.035
+    n_overbank: float | None = None
+    n_field: str | None = None
+
+
+def transect_n(reach_id: str, attributes: dict, t: int, params: RoughnessParams, *,
+               cowan_terms=None, classes=None, class_offsets=None, class_table=None,
+               banks=None):
+    """Manning's n of the left overbank, channel and right overbank of ``t``
+    transects, and where the channel n came from.
+
+    The channel n is the reach's (:func:`reach_channel_n`); with land-cover classes
+    sampled on the transects (``classes`` (t, k) at ``class_offsets`` (k,), with
+    ``class_table`` class → n), each part's n is the Horton–Einstein composite of the
+    classes under it (:func:`subsection_n_from_classes`), the channel's only where no
+    reach value was given. Returns ``(n (t, 3), source (t,) str, unknown_class (t,) bool)``.
+    """
+    n_ch, src0 = reach_channel_n(reach_id, attributes, default=params.n, n_field=params.n_field,
+                                 cowan_terms=cowan_terms)
+    n_ob = params.n_overbank or n_ch
+    n = np.tile([n_ob, n_ch, n_ob], (t, 1)).astype(float)
+    source = np.full(t, src0, dtype=object)
+    unknown = np.zeros(t, dtype=bool)
+    if classes is not None and class_table:
+        lc, unknown = subsection_n_from_classes(classes, class_offsets, banks, class_table, n_ch)
+        n[:, 0], n[:, 2] = lc[:, 0], lc[:, 2]
+        if src0 == "default":  # land cover sets the channel n unless a reach value does
+            n[:, 1] = lc[:, 1]
+        source = np.where(source == "default", "landcover", source + "+landcover")
+    return n, source, unknown

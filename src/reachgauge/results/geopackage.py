@@ -184,10 +184,9 @@ def _sample_sections(out, count: int = 4) -> pd.DataFrame:
     if ok.size == 0:
         return pd.DataFrame()
     pick = np.unique(ok[np.linspace(0, ok.size - 1, min(count, ok.size)).round().astype(int)])
-    x = res.offsets
     frames = []
     for i in pick:
-        z = res.sections_z[i]
+        x, z = res.offsets[i], res.sections_z[i]
         keep = np.isfinite(z)
         frames.append(pd.DataFrame({"reach_id": out.reach_id, "station": int(i),
                                     "offset": x[keep], "elevation": z[keep]}))

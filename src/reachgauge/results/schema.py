@@ -50,21 +50,24 @@ TRANSECT_FIELDS = {
     "n_overbank_right": ("n", "Manning's n of the right overbank"),
     "n_source": ("text", "where the channel n came from: default, field, cowan, landcover or "
                          "calibrated; '+landcover': overbank n from land cover"),
+    # bankfull figures: the channel between the bank offsets (basis: channel)
     "flow_area": ("area", "channel flow area at bankfull (between the bank offsets)"),
     "perimeter": ("length", "channel wetted perimeter at bankfull"),
     "top_width": ("length", "channel water-surface width at bankfull (bank to bank)"),
-    "hyd_radius": ("length", "channel hydraulic radius at bankfull, area / wetted perimeter"),
-    "hyd_depth": ("length", "channel hydraulic depth at bankfull, area / top width"),
+    "hyd_radius": ("length", "channel hydraulic radius at bankfull, flow_area / perimeter"),
+    "hyd_depth": ("length", "channel hydraulic depth at bankfull, flow_area / top_width"),
     "width_depth": ("none", "top width / hydraulic depth at bankfull"),
-    "velocity": ("velocity", "mean channel velocity at bankfull, q_main_channel / area"),
-    "discharge": ("discharge", "Manning discharge at bankfull, channel plus overbanks (divided-channel method)"),
-    "froude": ("none", "channel Froude number at bankfull"),
-    "shear": ("stress", "mean boundary shear stress at bankfull, gamma R S"),
+    "velocity": ("velocity", "mean channel velocity at bankfull, discharge / flow_area"),
+    "discharge": ("discharge", "Manning discharge of the channel between the banks at bankfull "
+                               "(its share of the divided-channel flow)"),
+    "froude": ("none", "channel Froude number at bankfull, on hydraulic depth"),
+    "shear": ("stress", "mean boundary shear stress of the channel at bankfull, gamma R S"),
     "stream_power": ("power", "channel unit stream power at bankfull, "
-                              "gamma q_main_channel S / top width"),
-    "q_overbank_left": ("discharge", "bankfull discharge carried by the left overbank"),
-    "q_main_channel": ("discharge", "bankfull discharge carried by the channel"),
-    "q_overbank_right": ("discharge", "bankfull discharge carried by the right overbank"),
+                              "gamma discharge S / top_width"),
+    "q_overbank_left": ("discharge", "discharge of the left overbank strip at the bankfull stage"),
+    "q_overbank_right": ("discharge", "discharge of the right overbank strip at the bankfull stage"),
+    "discharge_total": ("discharge", "discharge of the whole section at the bankfull stage: channel "
+                                     "plus overbank strips (divided-channel method)"),
     "n_observed": ("n", "channel n back-calculated from a measured flow matched to this transect"),
     "min_freeboard": ("length", "least freeboard to bankfull over the design flows (negative: out of bank)"),
     "flows_out": ("text", "design flows that leave the channel here"),
@@ -95,8 +98,8 @@ REACH_FIELDS = {
     "n_calibrated": ("n", "median channel n back-calculated from measured flows (if any)"),
     "confidence_low": ("count", "transects whose bankfull stage has low confidence"),
     "outliers": ("count", "transects whose bankfull depth is an outlier for the reach"),
-    "flows_out": ("text", "design flows above the reach's median bankfull discharge"),
-    "worst_ratio": ("none", "largest design / bankfull discharge ratio"),
+    "flows_out": ("text", "design flows above the reach's median discharge at the bankfull stage"),
+    "worst_ratio": ("none", "largest q_ratio of the design flows"),
 }
 
 RATING_FIELDS = {
@@ -109,31 +112,29 @@ RATING_FIELDS = {
     "perimeter": ("length", "wetted perimeter"),
     "top_width": ("length", "water-surface width"),
     "hyd_radius": ("length", "hydraulic radius"),
-    "velocity": ("velocity", "mean velocity"),
-    "discharge": ("discharge", "Manning discharge"),
+    "velocity": ("velocity", "mean velocity of the section, discharge / flow_area"),
+    "discharge": ("discharge", "Manning discharge (divided-channel method at the bankfull banks)"),
     "spills": ("flag", "the water reaches an end of the transect"),
 }
 
-STAGE_FIELDS = {
+SECTION_FIELDS = {  # figures of the whole connected section at a stage (basis: section)
+    **{k: RATING_FIELDS[k] for k in ("stage", "depth", "flow_area", "perimeter", "top_width",
+                                      "hyd_radius")},
+    "hyd_depth": ("length", "hydraulic depth, flow_area / top_width"),
+    "velocity": ("velocity", "mean velocity of the section, discharge / flow_area"),
+    "discharge": ("discharge", "Manning discharge, divided-channel method where banks are known"),
+    "froude": ("none", "Froude number of the section, on hydraulic depth"),
+    "shear": ("stress", "mean boundary shear stress, gamma R S"),
+    "stream_power": ("power", "unit stream power, gamma discharge S / top_width"),
+    "spills": RATING_FIELDS["spills"],
+}
+
+STAGE_FIELDS = {  # the same figures as the `section` command's rating table
     "reach_id": ("text", "reach identifier"),
     "station": ("count", "transect number"),
     "chainage": ("length", "chainage of the transect"),
     "request": ("text", "the stage asked for: 'depth D' or 'elevation E'"),
-    **{k: RATING_FIELDS[k] for k in ("stage", "depth", "flow_area", "perimeter", "top_width",
-                                      "hyd_radius", "velocity", "discharge", "spills")},
-    "froude": ("none", "Froude number"),
-    "shear": ("stress", "mean boundary shear stress"),
-}
-
-SECTION_FIELDS = {  # `reachgauge section --rating` table
-    **{k: RATING_FIELDS[k] for k in ("stage", "depth", "flow_area", "perimeter", "top_width",
-                                      "hyd_radius")},
-    "hyd_depth": ("length", "hydraulic depth, area / top width"),
-    **{k: RATING_FIELDS[k] for k in ("velocity", "discharge")},
-    "froude": ("none", "Froude number on hydraulic depth"),
-    "shear": ("stress", "mean boundary shear stress, gamma R S"),
-    "stream_power": ("power", "unit stream power, gamma Q S / top width"),
-    "spills": RATING_FIELDS["spills"],
+    **SECTION_FIELDS,
 }
 
 DESIGN_FIELDS = {
@@ -145,7 +146,8 @@ DESIGN_FIELDS = {
     "stage": ("length", "normal-depth water-surface elevation"),
     "depth": ("length", "normal depth above the thalweg"),
     "freeboard": ("length", "bankfull stage minus design stage (negative: out of bank)"),
-    "q_ratio": ("none", "design discharge / bankfull discharge"),
+    "q_ratio": ("none", "design discharge / discharge that fills the section to the bankfull stage "
+                         "(transects' discharge_total; reach row: its median)"),
     "out_of_bank": ("flag", "the flow leaves the channel"),
     "over_profile": ("flag", "the flow overtops an end of the transect: its stage counts only the "
                              "water inside the transect (an upper bound); widen the transect"),
