@@ -2,7 +2,7 @@
 
 Targets (issue 2): a 500-stage rating curve on a 1,000-point profile in
 milliseconds; (issue 4) a reach of 200 transects × 100 stages in well under a
-second.
+second; (issue 8) the kernel at O(log m) per (transect, stage).
 """
 
 import time
@@ -45,19 +45,23 @@ def main():
     t = best_of(reach, 3)
     print(f"reach, one at a time: 200 x 100 stages  {t * 1e3:8.2f} ms")
 
-    from reachgauge.kernel.profiles import ProfileSet
+    from reachgauge.kernel import sections as K
+    from reachgauge.kernel import solver
 
     z = np.array([s.elevation for s in sections])
-    ps = ProfileSet(xs, z)
-    stages = ps.thalweg[:, None] + st[None, :]
-    t = best_of(lambda: ps.geometry(stages), 3)
-    print(f"reach, ProfileSet: 200 x 100 stages     {t * 1e3:8.2f} ms")
-    t = best_of(lambda: ps.stage_for_discharge(5.0, 0.002, 0.035), 3)
-    print(f"reach, ProfileSet: normal depth x 200   {t * 1e3:8.2f} ms")
+    p = K.profiles(xs, z)
+    stages = p.thalweg[:, None] + st[None, :]
+    t = best_of(lambda: K.wet(p, stages), 3)
+    print(f"reach, kernel: 200 x 100 stages         {t * 1e3:8.2f} ms")
+    t = best_of(lambda: solver.normal_stage(p, np.full(200, 5.0), 0.002, 0.035), 3)
+    print(f"reach, kernel: normal depth x 200       {t * 1e3:8.2f} ms")
     banks = np.tile([20.0, 40.0], (200, 1))
-    t = best_of(lambda: ps.discharge(stages, 0.002, (0.06, 0.035, 0.06), banks), 3)
+    t = best_of(lambda: K.flow(p, stages, 0.002, (0.06, 0.035, 0.06), banks), 3)
     print(f"reach, divided channel: 200 x 100       {t * 1e3:8.2f} ms")
-
+    big = K.profiles(xs, np.tile(z, (50, 1)))
+    st50 = big.thalweg[:, None] + np.linspace(0, 5, 50)[None, :]
+    t = best_of(lambda: K.flow(big, st50, 0.002, (0.06, 0.035, 0.06), np.tile(banks, (50, 1))), 3)
+    print(f"10,000 transects x 50 stages, divided   {t * 1e3:8.2f} ms")
 
 if __name__ == "__main__":
     main()

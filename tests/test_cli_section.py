@@ -138,3 +138,17 @@ def test_divided_channel_rating_is_monotone(tmp_path, capsys):
                         0.05, "--banks", 6.5, 15.5, "--rating", out_csv], capsys)
     assert code == 0 and "rating dips" not in out
     assert pd.read_csv(out_csv)["discharge"].is_monotonic_increasing
+
+
+def test_back_calculated_n_with_banks_reproduces_the_measured_discharge(capsys):
+    # one conveyance model for n and figures (divided channel, Chow 1959, §6-9):
+    # the printed discharge must be the measured one (it printed 54.5 for 40 before)
+    code, out, _ = run(["section", SAMPLE, "--stage", 101.7, "--slope", 0.0021, "--discharge", 40,
+                        "--banks", 6.5, 15.5], capsys)
+    assert code == 0
+    line = next(l for l in out.splitlines() if l.startswith("discharge "))
+    assert float(line.split()[1]) == pytest.approx(40.0, rel=1e-3)
+    parts = [l for l in out.splitlines() if l.strip().startswith(("left overbank", "channel",
+                                                                    "right overbank"))]
+    assert sum(float(l.rsplit("discharge", 1)[1].split()[0]) for l in parts) == \
+        pytest.approx(40.0, rel=1e-3)

@@ -69,11 +69,11 @@ def add(sub):
 def run(args) -> int:
     import numpy as np
 
-    from reachgauge.hydraulics import figures as hydraulics, roughness
     from reachgauge import manning
-    from reachgauge.results.geopackage import write_csv_atomic
+    from reachgauge.hydraulics import roughness, surveyed
     from reachgauge.inputs.profile_csv import read_profile
     from reachgauge.kernel.crosssection import CrossSection
+    from reachgauge.results.geopackage import write_csv_atomic
 
     u = manning.unit_system(args.units)
     cs, kind = read_profile(args.profile, args.stage if args.stage is not None else None)
@@ -95,14 +95,16 @@ def run(args) -> int:
         cs = CrossSection(cs.offset, cs.elevation, banks=args.banks)
     manning.check_slope(args.slope)
 
-    n_used = None
+    n_given = None
     if args.n is not None:
         if len(args.n) not in (1, 3):
             raise InputError(f"--n takes one or three values, got {len(args.n)}",
                              "give --n 0.035, or --n 0.06 0.035 0.06 with --banks")
         for note in roughness.check_n_range(args.n, where="--n"):
             print(f"warning: {note}", file=sys.stderr)
-        n_used = args.n[0] if len(args.n) == 1 else args.n
+        n_given = args.n[0] if len(args.n) == 1 else args.n
+    res = surveyed.analyse_section(cs, stage, args.slope, n=n_given, discharge=args.discharge,
+                                   units=args.units)
 
     lines = [f"reachgauge {__version__} — one cross-section, Manning's equation "
              f"({u.name.upper()}: {u.length}, {u.discharge})",
@@ -112,17 +114,15 @@ def run(args) -> int:
              f"{u.length}",
              f"stage              {stage:.3f} {u.length} (depth {stage - cs.thalweg:.3f} {u.length})",
              f"slope              {args.slope:g}"]
+    model = "divided channel" if cs.banks is not None else "whole section"
     if args.discharge is not None:
-        geo = cs.geometry(stage)
-        n_back = float(manning.roughness(args.discharge, geo.area, geo.hydraulic_radius,
-                                         args.slope, args.units))
-        n_used = n_back
         lines.append(f"measured discharge {_fmt(args.discharge)} {u.discharge}")
-        lines.append(f"Manning's n        {n_back:.4g} (back-calculated, whole section)")
+        lines.append(f"Manning's n        {res.n_back:.4g} (back-calculated, {model}, one n "
+                     "for every subsection)")
     else:
-        nn = n_used if np.ndim(n_used) == 0 else "/".join(f"{v:g}" for v in n_used)
+        nn = res.n if np.ndim(res.n) == 0 else "/".join(f"{v:g}" for v in res.n)
         lines.append(f"Manning's n        {nn}")
-    fig = hydraulics.figures(cs, stage, args.slope, n_used, args.units).iloc[0]
+    fig = res.figures
     rows = [("area", fig.flow_area, u.area), ("wetted perimeter", fig.perimeter, u.length),
             ("top width", fig.top_width, u.length), ("hydraulic radius", fig.hyd_radius, u.length),
             ("hydraulic depth", fig.hyd_depth, u.length), ("velocity", fig.velocity, u.velocity),
@@ -130,20 +130,13 @@ def run(args) -> int:
             ("shear stress", fig.shear, u.stress), ("stream power", fig.stream_power, u.power)]
     for name, val, unit in rows:
         lines.append(f"{name:<19}{val:.4g} {unit}".rstrip())
-    if args.banks:
-        sub = cs.subsections(stage)
-        n3 = np.broadcast_to(np.asarray(n_used, dtype=float), (3,))
-        for label, part, ni in zip(("left overbank", "channel", "right overbank"), sub.parts, n3):
-            qi = float(manning.conveyance(part.area, part.hydraulic_radius, ni, args.units)
-                       * np.sqrt(args.slope))
-            lines.append(f"  {label:<17}area {float(part.area):.4g} {u.area}, "
-                         f"wetted perimeter {float(part.wetted_perimeter):.4g} {u.length}, "
-                         f"n {ni:g}, discharge {qi:.4g} {u.discharge}")
+    for label, area, perim, ni, qi in res.parts:
+        lines.append(f"  {label:<17}area {area:.4g} {u.area}, wetted perimeter {perim:.4g} "
+                     f"{u.length}, n {ni:g}, discharge {qi:.4g} {u.discharge}")
     if args.discharge is not None:
-        matches = roughness.table_matches(n_back, kind="channel")
-        if matches:
+        if res.table_rows:
             lines.append("n lies within these channel rows of Chow (1959) Table 5-6 (min–max):")
-            lines += [f"  {lo:.3f}–{hi:.3f}  {text}" for _k, text, (lo, _nm, hi) in matches]
+            lines += [f"  {lo:.3f}–{hi:.3f}  {text}" for _k, text, (lo, _nm, hi) in res.table_rows]
         else:
             lines.append("n lies within no row of Chow (1959) Table 5-6 for natural channels "
                          f"({roughness.TABLE_RANGE[0]:g}–{roughness.TABLE_RANGE[1]:g}): check the "
@@ -153,14 +146,8 @@ def run(args) -> int:
                      "figures cover only the water inside the profile")
 
     if args.rating is not None:
-        top_depth = cs.top - cs.thalweg
-        max_depth = args.rating_max_depth if args.rating_max_depth is not None else top_depth
-        step = args.rating_step if args.rating_step is not None else top_depth / 50
-        if not (step > 0 and max_depth > 0):
-            raise InputError("--rating-step and --rating-max-depth must be greater than 0",
-                             "give positive depths")
-        depths = np.arange(0.0, max_depth + step * 1e-9, step)
-        table = hydraulics.figures(cs, cs.thalweg + depths, args.slope, n_used, args.units)
+        table = surveyed.rating(cs, args.slope, res.n, units=args.units, step=args.rating_step,
+                                max_depth=args.rating_max_depth)
         write_csv_atomic(table, args.rating, overwrite=args.overwrite)
         lines.append(f"rating table       {len(table)} stages written to {args.rating}")
         dips = np.nonzero(np.diff(table["discharge"].to_numpy()) < 0)[0]

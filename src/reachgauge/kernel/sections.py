@@ -107,52 +107,59 @@ def profiles(offset, elevation) -> Profiles:
     ok = np.isfinite(z) & np.isfinite(x)
     size = ok.sum(axis=1)
     t, m = z.shape
-    # compact the valid points to the left of each row, keeping their order
-    order = np.argsort(~ok, axis=1, kind="stable")
-    last = np.maximum(size - 1, 0)[:, None]
-    order = np.take_along_axis(order, np.minimum(np.arange(m)[None, :], last), axis=1)
-    x = np.take_along_axis(x, order, axis=1)
-    z = np.take_along_axis(z, order, axis=1)
-    empty = size == 0
-    x[empty], z[empty] = 0.0, 0.0
+    x = x.copy()
+    z = z.copy()
+    ragged = np.nonzero(size < m)[0]
+    if ragged.size:  # compact the valid points to the left, keeping their order, and pad
+        sub = ok[ragged]
+        order = np.argsort(~sub, axis=1, kind="stable")
+        last = np.maximum(size[ragged] - 1, 0)[:, None]
+        order = np.take_along_axis(order, np.minimum(np.arange(m)[None, :], last), axis=1)
+        x[ragged] = np.take_along_axis(x[ragged], order, axis=1)
+        z[ragged] = np.take_along_axis(z[ragged], order, axis=1)
+        empty = size == 0
+        x[empty], z[empty] = 0.0, 0.0
 
     k = np.arange(m)[None, :]
-    inside = k < size[:, None]
-    i0 = np.argmin(np.where(inside, z, np.inf), axis=1)
-    rows = np.arange(t)[:, None]
-    zt = z[rows[:, 0], i0]
+    i0 = np.argmin(np.where(k < size[:, None], z, np.inf), axis=1)
+    base = np.arange(t)[:, None] * m
+    zf = z.ravel()
+    zt = zf.take(base[:, 0] + i0)
     # running maxima outward: entry k covers the points i0-k..i0 (left), i0..i0+k (right)
     li = i0[:, None] - k
     ri = i0[:, None] + k
-    left = np.where(li >= 0, z[rows, np.maximum(li, 0)], np.inf)
-    right = np.where(ri < size[:, None], z[rows, np.minimum(ri, m - 1)], np.inf)
+    left = np.where(li >= 0, zf.take(base + np.maximum(li, 0)), np.inf)
+    right = np.where(ri < size[:, None], zf.take(base + np.minimum(ri, m - 1)), np.inf)
     left_max = np.maximum.accumulate(left, axis=1)
     right_max = np.maximum.accumulate(right, axis=1)
 
     dx = np.diff(x, axis=1)
-    dz = np.diff(z, axis=1)
     h = z - zt[:, None]
-    zero = np.zeros((t, 1))
-    cz = np.concatenate([zero, np.cumsum(0.5 * (h[:, 1:] + h[:, :-1]) * dx, axis=1)], axis=1)
-    cl = np.concatenate([zero, np.cumsum(np.hypot(dx, dz), axis=1)], axis=1)
+    cz = np.zeros((t, m))
+    np.cumsum(0.5 * (h[:, 1:] + h[:, :-1]) * dx, axis=1, out=cz[:, 1:])
+    cl = np.zeros((t, m))
+    np.cumsum(np.hypot(dx, np.diff(z, axis=1)), axis=1, out=cl[:, 1:])
     return Profiles(x, z, size, i0, zt, left_max, right_max, cz, cl)
 
 
 def count_below(sorted_rows, values):
     """Number of entries of each row of ``sorted_rows`` (t, m; ascending, +inf
-    allowed) strictly below each of ``values`` (t, k): a binary search per
-    (row, value), vectorised (the loop runs over the bits of m, not over data)."""
+    allowed) strictly below each of ``values`` (t, k): a branch-free binary search
+    per (row, value), vectorised (the loop runs over the bits of m, not over data)."""
     t, m = sorted_rows.shape
     v = np.asarray(values, dtype=float)
-    rows = np.arange(t).reshape((t,) + (1,) * (v.ndim - 1))
-    lo = np.zeros(v.shape, dtype=np.intp)
-    hi = np.full(v.shape, m, dtype=np.intp)
-    for _ in range(int(m).bit_length()):
-        mid = (lo + hi) >> 1
-        below = (mid < hi) & (sorted_rows[rows, np.minimum(mid, m - 1)] < v)
-        lo = np.where(below, mid + 1, lo)
-        hi = np.where(below, hi, mid)
-    return lo
+    width = 1 << int(m).bit_length()               # a power of two > m, padded with +inf
+    table = np.full((t, width), np.inf)
+    table[:, :m] = sorted_rows
+    flat = table.ravel()
+    base = (np.arange(t) * width - 1).reshape((t,) + (1,) * (v.ndim - 1))
+    pos = np.zeros(v.shape, dtype=np.intp)
+    step = width >> 1
+    while step:
+        cand = pos + step
+        pos = np.where(flat.take(base + cand) < v, cand, pos)
+        step >>= 1
+    return pos
 
 
 @dataclass(frozen=True)
@@ -218,8 +225,7 @@ def wet(p: Profiles, stage) -> Wet:
     """The connected wet section of every profile at ``stage`` ((t, k), see
     :func:`stage_grid`). Invalid profiles (fewer than 3 points) are dry."""
     s = stage_grid(p, stage)
-    t = p.count
-    rows = np.arange(t)[:, None]
+    t, m = p.z.shape
     i0 = p.i0[:, None]
     last = np.maximum(p.size - 1, 0)[:, None]
     zt = p.thalweg[:, None]
@@ -228,28 +234,31 @@ def wet(p: Profiles, stage) -> Wet:
     cr_ = count_below(p.right_max, s)
     spill_l = is_wet & (cl_ > i0)
     spill_r = is_wet & (cr_ > last - i0)
-    x, z = p.x, p.z
+    base = np.arange(t)[:, None] * m
+    xf, zf, czf, clf = p.x.ravel(), p.z.ravel(), p.cz.ravel(), p.cl.ravel()
+    h = s - zt
     with np.errstate(divide="ignore", invalid="ignore"):
         # left edge: on the segment (j, j+1), j the first point out of the water
-        j = np.clip(i0 - cl_, 0, last - 1)
-        zj, zj1 = z[rows, j], z[rows, j + 1]
-        xj, xj1 = x[rows, j], x[rows, j + 1]
-        u = np.where(spill_l, 1.0, (s - zj1) / (zj - zj1))        # wet share of the segment
-        xl = np.where(spill_l, x[:, :1], xj1 - u * (xj1 - xj))
-        gl = np.where(spill_l, 0.0, p.cz[rows, j + 1] - 0.5 * (zj1 - zt + s - zt) * (xj1 - xl))
-        ll = np.where(spill_l, 0.0, p.cl[rows, j + 1] - u * (p.cl[rows, j + 1] - p.cl[rows, j]))
+        j = base + np.clip(i0 - cl_, 0, np.maximum(last - 1, 0))
+        zj, zj1 = zf.take(j), zf.take(j + 1)
+        xj, xj1 = xf.take(j), xf.take(j + 1)
+        c1 = clf.take(j + 1)
+        u = (s - zj1) / (zj - zj1)                                 # wet share of the segment
+        xl = np.where(spill_l, p.x[:, :1], xj1 - u * (xj1 - xj))
+        gl = np.where(spill_l, 0.0, czf.take(j + 1) - 0.5 * (zj1 - zt + h) * (xj1 - xl))
+        ll = np.where(spill_l, 0.0, c1 - u * (c1 - clf.take(j)))
         # right edge: on the segment (k-1, k), k the first point out of the water
-        k = np.clip(i0 + cr_, 1, last)
-        zk, zk0 = z[rows, k], z[rows, k - 1]
-        xk, xk0 = x[rows, k], x[rows, k - 1]
-        v = np.where(spill_r, 1.0, (s - zk0) / (zk - zk0))
-        xr = np.where(spill_r, x[rows, last], xk0 + v * (xk - xk0))
-        gr = np.where(spill_r, p.cz[rows, last],
-                      p.cz[rows, k - 1] + 0.5 * (zk0 - zt + s - zt) * (xr - xk0))
-        lr = np.where(spill_r, p.cl[rows, last],
-                      p.cl[rows, k - 1] + v * (p.cl[rows, k] - p.cl[rows, k - 1]))
+        k = base + np.clip(i0 + cr_, np.minimum(1, last), last)
+        zk, zk0 = zf.take(k), zf.take(k - 1)
+        xk, xk0 = xf.take(k), xf.take(k - 1)
+        c0 = clf.take(k - 1)
+        v = (s - zk0) / (zk - zk0)
+        end = base + last
+        xr = np.where(spill_r, xf.take(end), xk0 + v * (xk - xk0))
+        gr = np.where(spill_r, czf.take(end), czf.take(k - 1) + 0.5 * (zk0 - zt + h) * (xr - xk0))
+        lr = np.where(spill_r, clf.take(end), c0 + v * (clf.take(k) - c0))
     width = np.where(is_wet, xr - xl, 0.0)
-    area = np.where(is_wet, np.maximum((s - zt) * width - (gr - gl), 0.0), 0.0)
+    area = np.where(is_wet, np.maximum(h * width - (gr - gl), 0.0), 0.0)
     perim = np.where(is_wet, lr - ll, 0.0)
     nan = np.nan
     return Wet(stage=s, depth=np.maximum(s - zt, 0.0),
