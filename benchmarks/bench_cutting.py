@@ -20,7 +20,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 from terrain_fixtures import make_valley_raster, meander_line, write_lines  # noqa: E402
 
 from reachgauge.config import RunConfig  # noqa: E402
-from reachgauge.transects.cutting import cut_reach  # noqa: E402
+from reachgauge.inputs.network import open_raster  # noqa: E402
+from reachgauge.transects.cutting import CuttingParams, cut_reach  # noqa: E402
 from reachgauge.inputs.network import load_network  # noqa: E402
 
 
@@ -41,6 +42,11 @@ def peak_memory(fn):
     return peak
 
 
+def _cut(net, reach, cfg):
+    with open_raster(net.raster) as ds:
+        return cut_reach(ds, net.raster, reach, CuttingParams.from_config(cfg))
+
+
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--big-margin", type=float, default=1200.0,
@@ -59,8 +65,8 @@ def main():
             cfg = RunConfig(dem=v.path, streams=streams, half_width=40.0, spacing=5.0)
             t_load, net = best_of(lambda: load_network(cfg))
             reach = net.reaches[0]
-            t_cut, out = best_of(lambda: cut_reach(net.raster, reach, cfg))
-            peak = peak_memory(lambda: cut_reach(net.raster, reach, cfg))
+            t_cut, out = best_of(lambda: _cut(net, reach, cfg))
+            peak = peak_memory(lambda: _cut(net, reach, cfg))
             cells = net.raster.width * net.raster.height
             n = len(out)
             size = f"{net.raster.width}x{net.raster.height}"

@@ -33,7 +33,8 @@ import shapely
 from reachgauge import CrossSection
 from reachgauge.transects import cutting, sampler
 from reachgauge.config import RunConfig
-from reachgauge.transects.cutting import ReachSections, cut_all, cut_reach
+from reachgauge.batch.pipeline import cut_all
+from reachgauge.transects.cutting import CuttingParams, ReachSections, cut_reach
 from reachgauge.inputs.network import open_raster
 from terrain_fixtures import make_valley_raster, meander_line, straight_line, warp_raster, write_lines
 
@@ -214,7 +215,8 @@ def test_bad_reach_and_failing_reach_never_raise(tmp_path, monkeypatch, straight
     v, cfg, net, r = straight
     bad = net.reaches[0].__class__(**{**net.reaches[0].__dict__, "status": "too-short",
                                       "geometry": None, "message": "short"})
-    out = cut_reach(net.raster, bad, cfg)
+    with open_raster(net.raster) as ds:
+        out = cut_reach(ds, net.raster, bad, CuttingParams.from_config(cfg))
     assert isinstance(out, ReachSections) and out.status == "too-short" and len(out) == 0
     assert out.section is not None and np.isnan(out.reach_slope) and out.profile.empty
 
@@ -222,7 +224,8 @@ def test_bad_reach_and_failing_reach_never_raise(tmp_path, monkeypatch, straight
         raise RuntimeError("disk on fire")
 
     monkeypatch.setattr(sampler, "sample", boom)
-    out = cut_reach(net.raster, net.reaches[0], cfg)
+    with open_raster(net.raster) as ds:
+        out = cut_reach(ds, net.raster, net.reaches[0], CuttingParams.from_config(cfg))
     assert out.status == "failed" and "disk on fire" in out.message
 
 
@@ -230,7 +233,6 @@ def test_task_inputs_pickle_and_only_a_window_is_read(straight, monkeypatch):
     v, cfg, net, r = straight
     raster, reach, cfg2 = pickle.loads(pickle.dumps((net.raster, net.reaches[0], cfg)))
     cells = []
-    real = cutting.open_raster
 
     class Spy:
         def __init__(self, ds):
@@ -243,15 +245,8 @@ def test_task_inputs_pickle_and_only_a_window_is_read(straight, monkeypatch):
             cells.append(window.width * window.height)
             return self.ds.read(*a, window=window, **k)
 
-    from contextlib import contextmanager
-
-    @contextmanager
-    def spying(info):
-        with real(info) as ds:
-            yield Spy(ds)
-
-    monkeypatch.setattr(cutting, "open_raster", spying)
-    again = cut_reach(raster, reach, cfg2)
+    with open_raster(raster) as ds:
+        again = cut_reach(Spy(ds), raster, reach, CuttingParams.from_config(cfg2))
     np.testing.assert_array_equal(again.elevations, r.elevations)
     assert len(cells) == 2                                   # thalweg search, then sections
     with open_raster(net.raster) as ds:

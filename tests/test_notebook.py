@@ -21,4 +21,11 @@ def test_walkthrough_executes():
     client.execute()
     text = "".join(o.get("text", "") for c in nb.cells if c.cell_type == "code"
                    for o in c.get("outputs", []))
-    assert "transects; reach slope" in text and "bankfull stage" in text
+    assert "reaches:    5 of 5 processed" in text and "bankfull stage" in text
+    assert "normal depth of 10" in text
+    # the plots render inline (no forced non-display backend): PNG outputs exist
+    pngs = [o for c in nb.cells if c.cell_type == "code" for o in c.get("outputs", [])
+            if "image/png" in o.get("data", {})]
+    assert len(pngs) >= 3
+    # the notebook uses the same one-call entry point as the README and the CLI
+    assert "reachgauge.run(" in "".join(c.source for c in nb.cells)

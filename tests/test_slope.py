@@ -15,7 +15,7 @@ from scipy import stats
 
 from reachgauge.transects import slope
 from reachgauge.config import RunConfig
-from reachgauge.transects.cutting import cut_all
+from reachgauge.batch.pipeline import cut_all
 from terrain_fixtures import make_valley_raster, straight_line, write_lines
 
 C = np.arange(0.0, 1000.0, 20.0)

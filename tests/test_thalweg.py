@@ -10,7 +10,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from reachgauge.config import RunConfig
-from reachgauge.transects.cutting import cut_all
+from reachgauge.batch.pipeline import cut_all
 from reachgauge.transects.thalweg import find_thalweg
 from terrain_fixtures import make_valley_raster, straight_line, write_lines
 

@@ -133,7 +133,9 @@ def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
     if reach.status != "ok":
         return ReachOutput(rid, None, base)
     try:
-        rs = cutting.cut_reach(raster, reach, cfg, neighbours)
+        with network_mod.open_raster(raster) as ds:
+            rs = cutting.cut_reach(ds, raster, reach, cutting.CuttingParams.from_config(cfg),
+                                   neighbours)
         if rs.status != "ok" or len(rs.chainage) == 0:
             base.update(status=rs.status, message=rs.message, transects=len(rs.chainage))
             # cut_reach turns its own unexpected errors into status "failed": still a bug
@@ -195,6 +197,20 @@ def iterate(cfg: RunConfig, net, shared: SharedInputs):
         return
     for a in args:
         yield process_reach(*a)
+
+
+def cut_all(cfg: RunConfig):
+    """Load the network and cut every reach serially: per reach, the transects,
+    their sampled sections, thalweg and slopes. Returns ``(network, [ReachSections])``."""
+    net = network_mod.load_network(cfg)
+    params = cutting.CuttingParams.from_config(cfg)
+    out = []
+    with network_mod.open_raster(net.raster) as ds:
+        for reach in net.reaches:
+            nb = (net.neighbours(reach, reach.half_width_m + cfg.snap_distance)
+                  if reach.status == "ok" else None)
+            out.append(cutting.cut_reach(ds, net.raster, reach, params, nb))
+    return net, out
 
 
 @dataclass

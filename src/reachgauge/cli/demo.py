@@ -30,21 +30,17 @@ def add(sub):
 
 
 def run(args) -> int:
-    from reachgauge.config import from_mapping, read_toml
-    from reachgauge.batch.pipeline import run_to_file
+    from reachgauge import api
 
     cfg_path = DEMO_DIR / "config.toml"
     if not cfg_path.is_file():
         raise InputError(f"the demo data is missing ({cfg_path})",
                          "run the demo from a source checkout of reachgauge")
-    values = read_toml(cfg_path)
-    values["jobs"] = args.jobs
-    cfg = from_mapping(values, source="demo config")
     args.out.mkdir(parents=True, exist_ok=True)
     gpkg = args.out / "demo_result.gpkg"
     html = args.out / "demo_report.html"
-    summary = run_to_file(cfg, gpkg, overwrite=True, report=html,
-                          progress=Progress(quiet=args.quiet))
+    summary = api.run(gpkg, config=cfg_path, jobs=args.jobs, overwrite=True, report=html,
+                      progress=Progress(quiet=args.quiet))
     if not args.quiet:
         print("reachgauge demo: a fictional basin with a main stem and two tributaries")
         print("\n".join(summary.lines()))

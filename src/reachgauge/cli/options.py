@@ -74,15 +74,16 @@ def add_config_options(parser: argparse.ArgumentParser) -> None:
             g.add_argument(flag, type=typ, **kw)
 
 
+def setting_values(args) -> dict:
+    """The RunConfig settings given on the command line (None: not given)."""
+    return {f.name: getattr(args, f.name, None) for f in dataclasses.fields(RunConfig)}
+
+
 def config_from_args(args) -> RunConfig:
     """Config file first, command-line values over it."""
-    values = read_toml(args.config) if getattr(args, "config", None) else {}
-    for f in dataclasses.fields(RunConfig):
-        v = getattr(args, f.name, None)
-        if v is not None:
-            values[f.name] = v
-    return from_mapping(values, source=Path(args.config).name if getattr(args, "config", None)
-                        else "options")
+    from reachgauge.api import settings
+
+    return settings(getattr(args, "config", None), **setting_values(args))
 
 
 class Progress:
@@ -121,11 +122,4 @@ class Progress:
             print(out.error, file=self.stream)
 
 
-def raise_if_missing(cfg):
-    if cfg.dem is None or cfg.streams is None:
-        raise InputError("the terrain raster and the streams are both needed",
-                         "give --dem RASTER and --streams VECTOR (or set them in --config)")
-    for name in ("dem", "streams"):
-        p = getattr(cfg, name)
-        if not Path(p).exists() and "://" not in str(p) and not str(p).startswith("/vsi"):
-            raise InputError(f"{name} file {str(p)!r} does not exist", f"check the --{name} path")
+from reachgauge.api import require_inputs as raise_if_missing  # noqa: E402,F401  (one place)

@@ -8,7 +8,7 @@ import sys
 from pathlib import Path
 
 from reachgauge.notices import CAUTION_LINE
-from reachgauge.cli.options import Progress, add_config_options, config_from_args, raise_if_missing
+from reachgauge.cli.options import Progress, add_config_options, setting_values
 
 EXAMPLE = """\
 examples:
@@ -52,13 +52,12 @@ def add(sub):
 
 
 def run(args) -> int:
-    from reachgauge.batch.pipeline import run_to_file
+    from reachgauge import api
 
-    cfg = config_from_args(args)
-    raise_if_missing(cfg)
     progress = Progress(args.quiet, args.verbose)
-    summary = run_to_file(cfg, args.out, overwrite=args.overwrite, csv_dir=args.csv,
-                          report=args.report, colour_by=args.colour_by, progress=progress)
+    summary = api.run(args.out, config=args.config, overwrite=args.overwrite, csv=args.csv,
+                      report=args.report, colour_by=args.colour_by, progress=progress,
+                      **setting_values(args))
     if not args.quiet:
         print("\n".join(summary.lines()))
         print(CAUTION_LINE)

@@ -1,10 +1,9 @@
 """One reach from terrain to sections: stations → sampler → thalweg → slope.
 
-:func:`cut_reach` is the per-reach task that a process pool or a Dask cluster
-runs: its inputs (:class:`~reachgauge.network.RasterInfo`, a
-:class:`~reachgauge.network.Reach`, the :class:`~reachgauge.config.RunConfig`)
-pickle, it opens the raster itself and reads only windows around the reach.
-:func:`cut_all` runs every reach serially.
+:func:`cut_reach` cuts one reach from an open raster (the dataset, or a warped view
+of it, in the work CRS: the batch task opens it, :func:`reachgauge.inputs.network.open_raster`)
+and reads only windows around the reach. Its parameters are a small
+:class:`CuttingParams`.
 
 The steps, for a reach of ``t`` stations:
 
@@ -41,7 +40,7 @@ import shapely
 from reachgauge import flags as F
 from reachgauge.transects import sampler, slope, stations, thalweg
 from reachgauge.errors import InputError
-from reachgauge.inputs.network import Network, Reach, RasterInfo, load_network, open_raster
+from reachgauge.inputs.network import Reach, RasterInfo
 from reachgauge.kernel.crosssection import CrossSection
 
 log = logging.getLogger(__name__)
@@ -129,24 +128,45 @@ class ReachSections:
                    slope=z, reach_slope=math.nan, profile=pd.DataFrame(columns=PROFILE_COLUMNS))
 
 
+@dataclass(frozen=True)
+class CuttingParams:
+    """What cutting a reach needs (lengths in metres; see
+    :class:`reachgauge.config.RunConfig` for each one's meaning)."""
+
+    spacing: float = 20.0
+    smoothing: float = 30.0
+    snap_distance: float = 8.0
+    sample_step: float | None = None
+    slope_source: str = "bed"
+    carve: bool = True
+    slope_window: float = 200.0
+    min_slope: float = 1e-4
+
+    @classmethod
+    def from_config(cls, cfg) -> "CuttingParams":
+        return cls(**{f: getattr(cfg, f) for f in cls.__dataclass_fields__})
+
+
 def _scale(geom, k):
     return None if geom is None else shapely.transform(geom, lambda c: c * k)
 
 
-def cut_reach(raster: RasterInfo, reach: Reach, cfg, neighbours=None) -> ReachSections:
-    """Cut, sample and profile one reach. Never raises for a bad reach: an
-    unexpected error gives status ``failed`` with the error in ``message``."""
+def cut_reach(ds, raster: RasterInfo, reach: Reach, params: CuttingParams,
+              neighbours=None) -> ReachSections:
+    """Cut, sample and profile one reach from the open raster ``ds`` (described by
+    ``raster``). Never raises for a bad reach: an unexpected error gives status
+    ``failed`` with the error in ``message``."""
     if reach.status != "ok" or reach.geometry is None:
         return ReachSections.empty(reach, reach.status, reach.message)
     try:
-        return _cut(raster, reach, cfg, neighbours)
+        return _cut(ds, raster, reach, params, neighbours)
     except Exception as exc:  # a bad reach must never fail the batch
         log.exception("reach %s failed", reach.reach_id)
         tb = traceback.format_exception_only(type(exc), exc)[-1].strip()
         return ReachSections.empty(reach, "failed", tb)
 
 
-def _cut(raster, reach, cfg, neighbours):
+def _cut(ds, raster, reach, cfg, neighbours):
     f = raster.xy_factor
     line = _scale(reach.geometry, f)
     hw = float(reach.half_width_m)
@@ -157,17 +177,16 @@ def _cut(raster, reach, cfg, neighbours):
     n_half = max(1, math.ceil(hw / step - 1e-9))
     u = np.linspace(-hw, hw, 2 * n_half + 1)
     near = np.abs(u) <= snap + 1e-9
-    with open_raster(raster) as ds:
-        # Thalweg search on pit-filled ground, then the final, re-centred sections.
-        pts = stations.transect_points(st.xy, st.left, u[near]) / f
-        search = sampler.sample(ds, pts, z_factor=raster.z_factor, fill_pits=True)
-        tw = thalweg.find_thalweg(u[near], search.z, snap)
-        centre = st.xy - tw.shift[:, None] * st.left
-        lim = stations.crossing_limits(centre, st.left, hw, st.xy, st.chainage, own=line,
-                                       others=_scale(neighbours, f), margin=snap, min_keep=snap,
-                                       own_skip=cfg.smoothing / 2)
-        pts = stations.transect_points(centre, st.left, u) / f
-        got = sampler.sample(ds, pts, z_factor=raster.z_factor)
+    # Thalweg search on pit-filled ground, then the final, re-centred sections.
+    pts = stations.transect_points(st.xy, st.left, u[near]) / f
+    search = sampler.sample(ds, pts, z_factor=raster.z_factor, fill_pits=True)
+    tw = thalweg.find_thalweg(u[near], search.z, snap)
+    centre = st.xy - tw.shift[:, None] * st.left
+    lim = stations.crossing_limits(centre, st.left, hw, st.xy, st.chainage, own=line,
+                                   others=_scale(neighbours, f), margin=snap, min_keep=snap,
+                                   own_skip=cfg.smoothing / 2)
+    pts = stations.transect_points(centre, st.left, u) / f
+    got = sampler.sample(ds, pts, z_factor=raster.z_factor)
     inside = (u[None, :] >= -lim.left[:, None] - 1e-9) & (u[None, :] <= lim.right[:, None] + 1e-9)
     z = np.where(inside, got.z, np.nan)
     centre_i = n_half
@@ -232,15 +251,3 @@ def _join_flags(columns, t):
 
 def _scale_array(geoms, k):
     return shapely.transform(geoms, lambda c: c * k)
-
-
-def cut_all(cfg) -> tuple[Network, list[ReachSections]]:
-    """Load the network and cut every reach, serially: per reach, the
-    transects, their sampled sections, thalweg and slopes."""
-    net = load_network(cfg)
-    out = []
-    for reach in net.reaches:
-        reach_hw = reach.half_width_m + cfg.snap_distance
-        nb = net.neighbours(reach, reach_hw) if reach.status == "ok" else None
-        out.append(cut_reach(net.raster, reach, cfg, nb))
-    return net, out

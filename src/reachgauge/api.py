@@ -1,0 +1,54 @@
+"""The whole job in one Python call: :func:`run`, with the command line's parameters.
+
+``reachgauge run`` on the command line is a thin layer over this; the README and the
+walkthrough notebook use it too. Settings are the fields of
+:class:`reachgauge.config.RunConfig` (the options of ``reachgauge run --help`` with
+underscores), in the run's units: metres, or feet with ``units="us"``.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from reachgauge.config import RunConfig, from_mapping, read_toml
+from reachgauge.errors import InputError
+
+
+def settings(config=None, **values) -> RunConfig:
+    """A :class:`RunConfig` from an optional TOML file and keyword settings (keyword
+    values win; None means "not given"). Lengths are converted from feet when the
+    run's units are "us"; every value is checked."""
+    merged = read_toml(config) if config else {}
+    merged.update({k: v for k, v in values.items() if v is not None})
+    return from_mapping(merged, source=Path(config).name if config else "settings")
+
+
+def require_inputs(cfg: RunConfig) -> None:
+    """The terrain raster and the streams must both be given and exist."""
+    if cfg.dem is None or cfg.streams is None:
+        raise InputError("the terrain raster and the streams are both needed",
+                         "give --dem RASTER and --streams VECTOR (or set them in --config)")
+    for name in ("dem", "streams"):
+        p = getattr(cfg, name)
+        if not Path(p).exists() and "://" not in str(p) and not str(p).startswith("/vsi"):
+            raise InputError(f"{name} file {str(p)!r} does not exist", f"check the --{name} path")
+
+
+def run(out, *, config=None, overwrite: bool = False, csv=None, report=None,
+        colour_by: str = "discharge", progress=None, **values):
+    """Run the whole batch and write the GeoPackage ``out`` (atomically), optionally
+    CSV copies of its tables in the folder ``csv`` and the HTML ``report``.
+
+    ``config``: a TOML file of settings; ``values``: settings as keywords (e.g.
+    ``dem="terrain.tif", streams="streams.gpkg", spacing=10.0, jobs=2``), which win
+    over the file. ``progress(output, done, total)`` is called as each reach
+    finishes. Returns the run's :class:`~reachgauge.batch.pipeline.RunSummary`
+    (``.lines()`` prints like the command line). Raises
+    :class:`~reachgauge.errors.InputError` for bad input, before any work.
+    """
+    from reachgauge.batch.pipeline import run_to_file
+
+    cfg = settings(config, **values)
+    require_inputs(cfg)
+    return run_to_file(cfg, out, overwrite=overwrite, csv_dir=csv, report=report,
+                       colour_by=colour_by, progress=progress)
