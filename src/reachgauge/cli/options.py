@@ -10,8 +10,7 @@ import time
 import typing
 from pathlib import Path
 
-from reachgauge.config import RunConfig, fields_by_group, from_mapping, read_toml
-from reachgauge.errors import InputError
+from reachgauge.config import RunConfig, fields_by_group
 
 GROUP_TITLES = {
     "inputs": "inputs and units",

@@ -77,17 +77,7 @@ def run(args) -> int:
 
     u = manning.unit_system(args.units)
     cs, kind = read_profile(args.profile, args.stage if args.stage is not None else None)
-    if kind == "depth":
-        stage = 0.0 if args.stage is None else args.stage
-        if args.depth is not None:
-            raise InputError("--depth has no meaning for a depth profile",
-                             "give --stage, the water surface the depths were measured from")
-    elif args.stage is not None:
-        stage = args.stage
-    elif args.depth is not None:
-        stage = cs.thalweg + args.depth
-    else:
-        raise InputError("the water level is missing", "give --stage ELEV or --depth D")
+    stage = _stage(args, cs, kind)
     if stage <= cs.thalweg:
         raise InputError(f"stage {stage:g} is not above the thalweg ({cs.thalweg:g} {u.length})",
                          "give a water surface above the lowest point of the profile")
@@ -122,26 +112,10 @@ def run(args) -> int:
     else:
         nn = res.n if np.ndim(res.n) == 0 else "/".join(f"{v:g}" for v in res.n)
         lines.append(f"Manning's n        {nn}")
-    fig = res.figures
-    rows = [("area", fig.flow_area, u.area), ("wetted perimeter", fig.perimeter, u.length),
-            ("top width", fig.top_width, u.length), ("hydraulic radius", fig.hyd_radius, u.length),
-            ("hydraulic depth", fig.hyd_depth, u.length), ("velocity", fig.velocity, u.velocity),
-            ("discharge", fig.discharge, u.discharge), ("Froude number", fig.froude, ""),
-            ("shear stress", fig.shear, u.stress), ("stream power", fig.stream_power, u.power)]
-    for name, val, unit in rows:
-        lines.append(f"{name:<19}{val:.4g} {unit}".rstrip())
-    for label, area, perim, ni, qi in res.parts:
-        lines.append(f"  {label:<17}area {area:.4g} {u.area}, wetted perimeter {perim:.4g} "
-                     f"{u.length}, n {ni:g}, discharge {qi:.4g} {u.discharge}")
+    lines += _figure_lines(res, u)
     if args.discharge is not None:
-        if res.table_rows:
-            lines.append("n lies within these channel rows of Chow (1959) Table 5-6 (min–max):")
-            lines += [f"  {lo:.3f}–{hi:.3f}  {text}" for _k, text, (lo, _nm, hi) in res.table_rows]
-        else:
-            lines.append("n lies within no row of Chow (1959) Table 5-6 for natural channels "
-                         f"({roughness.TABLE_RANGE[0]:g}–{roughness.TABLE_RANGE[1]:g}): check the "
-                         "stage, slope and discharge")
-    if bool(fig.spills):
+        lines += _table_lines(res)
+    if bool(res.figures.spills):
         lines.append("note: the water reaches an end of the profile (the section spills); the "
                      "figures cover only the water inside the profile")
 
@@ -159,3 +133,45 @@ def run(args) -> int:
     lines.append(CAUTION_LINE)
     print("\n".join(lines))
     return 0
+
+
+def _stage(args, cs, kind) -> float:
+    """The water-surface elevation asked for: --stage, or thalweg + --depth; a depth
+    profile's own surface (default 0)."""
+    if kind == "depth":
+        if args.depth is not None:
+            raise InputError("--depth has no meaning for a depth profile",
+                             "give --stage, the water surface the depths were measured from")
+        return 0.0 if args.stage is None else args.stage
+    if args.stage is not None:
+        return args.stage
+    if args.depth is not None:
+        return cs.thalweg + args.depth
+    raise InputError("the water level is missing", "give --stage ELEV or --depth D")
+
+
+def _figure_lines(res, u) -> list[str]:
+    fig = res.figures
+    lines = []
+    rows = [("area", fig.flow_area, u.area), ("wetted perimeter", fig.perimeter, u.length),
+            ("top width", fig.top_width, u.length), ("hydraulic radius", fig.hyd_radius, u.length),
+            ("hydraulic depth", fig.hyd_depth, u.length), ("velocity", fig.velocity, u.velocity),
+            ("discharge", fig.discharge, u.discharge), ("Froude number", fig.froude, ""),
+            ("shear stress", fig.shear, u.stress), ("stream power", fig.stream_power, u.power)]
+    for name, val, unit in rows:
+        lines.append(f"{name:<19}{val:.4g} {unit}".rstrip())
+    for label, area, perim, ni, qi in res.parts:
+        lines.append(f"  {label:<17}area {area:.4g} {u.area}, wetted perimeter {perim:.4g} "
+                     f"{u.length}, n {ni:g}, discharge {qi:.4g} {u.discharge}")
+    return lines
+
+
+def _table_lines(res) -> list[str]:
+    from reachgauge.hydraulics import roughness
+
+    if res.table_rows:
+        return (["n lies within these channel rows of Chow (1959) Table 5-6 (min–max):"]
+                + [f"  {lo:.3f}–{hi:.3f}  {text}" for _k, text, (lo, _nm, hi) in res.table_rows])
+    return ["n lies within no row of Chow (1959) Table 5-6 for natural channels "
+            f"({roughness.TABLE_RANGE[0]:g}–{roughness.TABLE_RANGE[1]:g}): check the "
+            "stage, slope and discharge"]

@@ -206,20 +206,7 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     stages = rating.stage_table(p, rid, rs.chainage, params.rating, slope, n, banks, ok)
     design, checks, reach_flows = _design(p, rid, rs.chainage, inputs.flows, slope, n, banks,
                                           bf, ok)
-    out_names = [[] for _ in range(t)]
-    for i, flow, out, over in zip(checks["index"], checks["flow"], checks["out_of_bank"],
-                                  checks["over_profile"]):
-        if out:
-            out_names[i].append(flow)
-            tflags[i].append("out-of-bank")
-        if over:
-            tflags[i].append("over-profile")
-
-    cand = picks.candidates
-    with np.errstate(invalid="ignore"):
-        spread = np.where(np.isfinite(cand).any(axis=1),
-                          np.nanmax(np.where(np.isfinite(cand), cand, -np.inf), axis=1)
-                          - np.nanmin(np.where(np.isfinite(cand), cand, np.inf), axis=1), np.nan)
+    out_names = _flow_flags(checks, tflags)
     tr = pd.DataFrame({
         "reach_id": rid, "station": np.arange(t), "chainage": np.asarray(rs.chainage, float),
         "status": np.asarray(rs.transect_status, dtype=object), "flags": "",
@@ -227,7 +214,7 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
         "slope": slope,
         "bankfull_method": np.where(picks.confidence != "", picks.method, ""),
         "confidence": picks.confidence,
-        "bank_left": banks[:, 0], "bank_right": banks[:, 1], "method_spread": spread,
+        "bank_left": banks[:, 0], "bank_right": banks[:, 1], "method_spread": _spread(picks.candidates),
         "n_channel": n[:, 1], "n_overbank_left": n[:, 0], "n_overbank_right": n[:, 2],
         "n_source": n_src, **bf, "n_observed": n_obs,
         "min_freeboard": capacity.least_freeboard(checks, t),
@@ -242,6 +229,28 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     return ReachResult(reach=reach_row, transects=tr, rating=curves, stages=stages, design=design,
                        calibration=cal, profile=profile, banks=banks,
                        sections_z=np.where(inside, p.z, np.nan), offsets=np.where(inside, p.x, np.nan))
+
+
+def _flow_flags(checks, tflags) -> list:
+    """Add the design-flow flags to each transect's codes; the names of the flows
+    out of bank at each transect."""
+    out_names = [[] for _ in tflags]
+    for i, flow, out, over in zip(checks["index"], checks["flow"], checks["out_of_bank"],
+                                  checks["over_profile"]):
+        if out:
+            out_names[i].append(flow)
+            tflags[i].append("out-of-bank")
+        if over:
+            tflags[i].append("over-profile")
+    return out_names
+
+
+def _spread(cand):
+    """Range (m) of the automatic methods' stages per transect; NaN where none found one."""
+    found = np.isfinite(cand)
+    hi = np.max(np.where(found, cand, -np.inf), axis=1)
+    lo = np.min(np.where(found, cand, np.inf), axis=1)
+    return np.where(found.any(axis=1), hi - lo, np.nan)
 
 
 def _reach_row(rs, tr, ok, summary, n, n_src, n_cal, picks, outlier, reach_flows) -> dict:

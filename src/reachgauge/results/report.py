@@ -18,7 +18,6 @@ Values are shown in the run's own units, read from the ``run_info`` layer.
 
 from __future__ import annotations
 
-import html
 import json
 import math
 from collections import Counter
@@ -31,7 +30,8 @@ from reachgauge import flags as flagcodes
 from reachgauge.results import schema
 from reachgauge.errors import InputError
 from reachgauge.notices import CAUTION_LINE, CAUTIONS
-from reachgauge.results.report_figures import (DPI, INK, NO_VALUE, PALETTE, _crs_unit, _f, _new_figure, _num,  # noqa: F401
+from reachgauge.results.report_page import _codes, _e, _figure_html, _page, _table  # noqa: F401
+from reachgauge.results.report_figures import (_map, DPI, INK, NO_VALUE, PALETTE, _crs_unit, _f, _new_figure, _num,  # noqa: F401
                              _png, _profile_png, _rating_png, _scale_bar, _sections_png, _truthy,
                              colour_map, line_parts, scale_length)
 
@@ -187,28 +187,6 @@ def _json(text, default):
 
 
 # ============================================================ HTML pieces
-def _e(value) -> str:
-    """Escape any user-supplied value for HTML text or attribute."""
-    return html.escape("" if value is None else str(value), quote=True)
-
-
-def _codes(text: str, vocabulary: dict) -> str:
-    parts = [c for c in str(text).split(";") if c]
-    return " ".join(f'<span class="code" title="{_e(vocabulary.get(c, ""))}">{_e(c)}</span>'
-                    for c in parts)
-
-
-def _table(head: list[str], rows: list[str], cls: str = "") -> str:
-    th = "".join(f"<th>{h}</th>" for h in head)
-    body = "".join(rows)
-    return f'<table class="{cls}"><thead><tr>{th}</tr></thead><tbody>{body}</tbody></table>'
-
-
-def _figure_html(uri: str, alt: str, caption: str = "") -> str:
-    cap = f"<figcaption>{caption}</figcaption>" if caption else ""
-    return f'<figure><img src="{uri}" alt="{_e(alt)}">{cap}</figure>'
-
-
 def _header(info: _Info) -> str:
     created = _e(info.kv.get("created_utc", "unknown date"))
     version = _e(info.kv.get("reachgauge_version", "?"))
@@ -403,120 +381,4 @@ def _transect_table(tr: pd.DataFrame, info: _Info) -> str:
                     f"<td>{_num(t.discharge)}</td><td>{_num(t.min_freeboard, 2)}</td></tr>")
     return _table(head, rows, "transects")
 
-
-def _page(body: str) -> str:
-    csp = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
-    return ('<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
-            f'<meta http-equiv="Content-Security-Policy" content="{csp}">'
-            '<meta name="viewport" content="width=device-width, initial-scale=1">'
-            f"<title>reachgauge reach report</title><style>{_CSS}</style></head>"
-            f'<body><div id="top" class="page">{body}</div></body></html>\n')
-
-
-_CSS = """
-body{margin:0;background:#f6f3ee;color:#23201c;font:15px/1.45 system-ui,-apple-system,"Segoe UI",
-Roboto,"DejaVu Sans",sans-serif}
-.page{max-width:1180px;margin:0 auto;padding:18px 22px 40px}
-header{border-bottom:3px solid #604069;margin-bottom:14px}
-h1{font-size:28px;margin:6px 0 2px;color:#352c5a;letter-spacing:.02em}
-h2{font-size:20px;margin:0 0 10px;color:#352c5a}
-h3{font-size:16px;margin:16px 0 6px;color:#604069}
-.sub{margin:0 0 10px;color:#6d6358}
-.panel,.reach{background:#fff;border:1px solid #e2dacb;border-radius:6px;padding:14px 18px;
-margin:14px 0}
-.reach{border-top:5px solid #8b5569}
-.reach h2 .name{font-weight:400;color:#6d6358}
-.caution{background:#fff4df;border:1px solid #e3b176;border-left:8px solid #b4471c;
-border-radius:6px;padding:10px 18px;margin:14px 0}
-.caution h2{color:#7a2f10;margin-bottom:4px}.caution li{margin:3px 0}
-dl.facts{display:grid;grid-template-columns:max-content 1fr;gap:3px 16px;margin:0}
-dl.facts dt{font-weight:600;color:#4a3b2e}dl.facts dd{margin:0}
-dl.facts ul{margin:0;padding-left:18px}
-table{border-collapse:collapse;margin:6px 0 10px;font-size:13.5px}
-th{background:#efe7da;text-align:left;padding:4px 8px;border-bottom:2px solid #d6c9b3}
-td{padding:3px 8px;border-bottom:1px solid #eee6d9;vertical-align:top}
-table.transects td:nth-child(n+7),table.transects td:nth-child(2),table.transects td:nth-child(3)
-{text-align:right;font-variant-numeric:tabular-nums}
-tr.flagged td{background:#fbecd9}tr.flagged td.mark{color:#b4471c;font-weight:700;
-border-left:4px solid #d08e63}
-tr.void td{background:#efece7;color:#7a7166}tr.void td.mark{color:#604069;font-weight:700;
-border-left:4px solid #8b5569}
-.code{font-family:ui-monospace,"DejaVu Sans Mono",monospace;font-size:12.5px;background:#f3eee6;
-border:1px solid #e2dacb;border-radius:3px;padding:0 4px;white-space:nowrap}
-.code.bad{background:#f1e4ee;border-color:#b58aa8;color:#4b2347}
-.path{font-family:ui-monospace,"DejaVu Sans Mono",monospace;font-size:12.5px;word-break:break-all}
-.pair{display:grid;grid-template-columns:minmax(0,1fr) minmax(0,1fr);gap:18px;align-items:start}
-@media (max-width:900px){.pair{grid-template-columns:1fr}}
-figure{margin:12px 0}figure img{max-width:100%;height:auto;border:1px solid #eee6d9}
-figcaption{font-size:13px;color:#6d6358}
-ol.toc{columns:2;margin:0;padding-left:22px}ol.toc li{margin:2px 0;break-inside:avoid}
-a{color:#604069}.top{font-size:12.5px;text-align:right;margin:4px 0 0}
-.void-box{background:#f6f0f4;border-left:5px solid #8b5569;padding:6px 12px}
-details{margin-top:8px}summary{cursor:pointer;color:#604069}.note{font-size:12.5px;color:#6d6358}
-footer{font-size:12.5px;color:#6d6358;border-top:1px solid #d6c9b3;margin-top:20px}
-"""
-
-
-# ================================================================= figures
-def _map(lay: dict, colour_by: str, info: _Info) -> str:
-    from matplotlib.cm import ScalarMappable
-    from matplotlib.collections import LineCollection
-    from matplotlib.colors import Normalize
-
-    reaches, tr, pts = lay["reaches"], lay["transects"], lay["thalweg_points"]
-    r_geoms = reaches["geometry"].values if "geometry" in reaches else []
-    r_lines, _ = line_parts(r_geoms)
-    t_lines, t_src = line_parts(tr["geometry"].values if "geometry" in tr else [])
-    if not r_lines and not t_lines:
-        return '<section class="panel"><h2>Map</h2><p>No geometry to draw.</p></section>'
-    unit, geographic = _crs_unit(info.crs)
-    allxy = np.concatenate(r_lines + t_lines)
-    span = np.ptp(allxy, axis=0)
-    aspect = span[1] / span[0] if span[0] > 0 else 1.0
-    fig = _new_figure(9.5, float(np.clip(8.0 * aspect, 4.0, 9.0)) + 0.6)
-    ax = fig.add_subplot()
-    cmap = colour_map()
-    values = pd.to_numeric(tr[colour_by], errors="coerce").to_numpy(float)[t_src]
-    finite = np.isfinite(values)
-    lo, hi = (float(values[finite].min()), float(values[finite].max())) if finite.any() else (0, 1)
-    norm = Normalize(lo, hi if hi > lo else lo + (abs(lo) or 1.0) * 1e-6)
-    if (~finite).any():
-        ax.add_collection(LineCollection([t_lines[j] for j in np.flatnonzero(~finite)],
-                                         colors=NO_VALUE, linewidths=0.8, linestyles=(0, (2, 2)),
-                                         zorder=1))
-    if finite.any():
-        ax.add_collection(LineCollection([t_lines[j] for j in np.flatnonzero(finite)],
-                                         array=values[finite], cmap=cmap, norm=norm,
-                                         linewidths=2.0, zorder=2))
-    if r_lines:
-        ax.add_collection(LineCollection(r_lines, colors=INK, linewidths=1.2, zorder=3))
-    if "geometry" in pts and len(pts):
-        import shapely
-
-        xy = shapely.get_coordinates(np.asarray(pts["geometry"].values, dtype=object))
-        ax.scatter(xy[:, 0], xy[:, 1], s=2.5, c=INK, linewidths=0, zorder=4)
-    size = 8 if len(reaches) <= 20 else 6
-    for r, geom in zip(reaches["reach_id"], r_geoms):
-        if geom is not None and not geom.is_empty:
-            p = geom.interpolate(0.5, normalized=True)
-            ax.text(p.x, p.y, f" {r}", fontsize=size, color=INK, parse_math=False, zorder=5,
-                    bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.75))
-    ax.set_aspect("equal", adjustable="box")
-    ax.autoscale_view()
-    ax.ticklabel_format(useOffset=False, style="plain")
-    ax.tick_params(labelsize=8)
-    ax.set_xlabel("longitude (°)" if geographic else f"easting ({unit})")
-    ax.set_ylabel("latitude (°)" if geographic else f"northing ({unit})")
-    if not geographic:
-        _scale_bar(ax, unit)
-    field_unit = info.unit("transects", colour_by)
-    label = f"{colour_by} ({field_unit})" if field_unit else colour_by
-    if finite.any():
-        fig.colorbar(ScalarMappable(norm, cmap), ax=ax, shrink=0.85, label=label)
-    uri = _png(fig)
-    missing = int((~finite).sum())
-    note = f"; {missing} transect(s) without a value drawn grey, dashed" if missing else ""
-    cap = (f"Reaches (dark lines, labelled by id), transects coloured by <b>{_e(label)}</b>, "
-           f"thalweg points as dots; axes in map units of the result's CRS{note}.")
-    return f'<section class="panel"><h2>Map</h2>{_figure_html(uri, "map", cap)}</section>'
 

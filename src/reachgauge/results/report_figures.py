@@ -14,6 +14,8 @@ import math
 import numpy as np
 import pandas as pd
 
+from reachgauge.results.report_page import _e, _figure_html
+
 # Sequential palette of our own ("sand to plum"): CIE L* falls steadily, 7 to 10.5 a
 # step from 87 to 14, so order reads without hue and survives any colour-vision
 # deficiency; the lightest stop stays visible on the white map.
@@ -288,3 +290,66 @@ def _rating_png(rating: pd.DataFrame, design: pd.DataFrame, r, info) -> str:
     ax.grid(color="#e6dfd3", lw=0.6)
     _legend(ax, loc="lower right")
     return _png(fig)
+
+
+def _map(lay: dict, colour_by: str, info) -> str:
+    from matplotlib.cm import ScalarMappable
+    from matplotlib.collections import LineCollection
+    from matplotlib.colors import Normalize
+
+    reaches, tr, pts = lay["reaches"], lay["transects"], lay["thalweg_points"]
+    r_geoms = reaches["geometry"].values if "geometry" in reaches else []
+    r_lines, _ = line_parts(r_geoms)
+    t_lines, t_src = line_parts(tr["geometry"].values if "geometry" in tr else [])
+    if not r_lines and not t_lines:
+        return '<section class="panel"><h2>Map</h2><p>No geometry to draw.</p></section>'
+    unit, geographic = _crs_unit(info.crs)
+    allxy = np.concatenate(r_lines + t_lines)
+    span = np.ptp(allxy, axis=0)
+    aspect = span[1] / span[0] if span[0] > 0 else 1.0
+    fig = _new_figure(9.5, float(np.clip(8.0 * aspect, 4.0, 9.0)) + 0.6)
+    ax = fig.add_subplot()
+    cmap = colour_map()
+    values = pd.to_numeric(tr[colour_by], errors="coerce").to_numpy(float)[t_src]
+    finite = np.isfinite(values)
+    lo, hi = (float(values[finite].min()), float(values[finite].max())) if finite.any() else (0, 1)
+    norm = Normalize(lo, hi if hi > lo else lo + (abs(lo) or 1.0) * 1e-6)
+    if (~finite).any():
+        ax.add_collection(LineCollection([t_lines[j] for j in np.flatnonzero(~finite)],
+                                         colors=NO_VALUE, linewidths=0.8, linestyles=(0, (2, 2)),
+                                         zorder=1))
+    if finite.any():
+        ax.add_collection(LineCollection([t_lines[j] for j in np.flatnonzero(finite)],
+                                         array=values[finite], cmap=cmap, norm=norm,
+                                         linewidths=2.0, zorder=2))
+    if r_lines:
+        ax.add_collection(LineCollection(r_lines, colors=INK, linewidths=1.2, zorder=3))
+    if "geometry" in pts and len(pts):
+        import shapely
+
+        xy = shapely.get_coordinates(np.asarray(pts["geometry"].values, dtype=object))
+        ax.scatter(xy[:, 0], xy[:, 1], s=2.5, c=INK, linewidths=0, zorder=4)
+    size = 8 if len(reaches) <= 20 else 6
+    for r, geom in zip(reaches["reach_id"], r_geoms):
+        if geom is not None and not geom.is_empty:
+            p = geom.interpolate(0.5, normalized=True)
+            ax.text(p.x, p.y, f" {r}", fontsize=size, color=INK, parse_math=False, zorder=5,
+                    bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none", alpha=0.75))
+    ax.set_aspect("equal", adjustable="box")
+    ax.autoscale_view()
+    ax.ticklabel_format(useOffset=False, style="plain")
+    ax.tick_params(labelsize=8)
+    ax.set_xlabel("longitude (°)" if geographic else f"easting ({unit})")
+    ax.set_ylabel("latitude (°)" if geographic else f"northing ({unit})")
+    if not geographic:
+        _scale_bar(ax, unit)
+    field_unit = info.unit("transects", colour_by)
+    label = f"{colour_by} ({field_unit})" if field_unit else colour_by
+    if finite.any():
+        fig.colorbar(ScalarMappable(norm, cmap), ax=ax, shrink=0.85, label=label)
+    uri = _png(fig)
+    missing = int((~finite).sum())
+    note = f"; {missing} transect(s) without a value drawn grey, dashed" if missing else ""
+    cap = (f"Reaches (dark lines, labelled by id), transects coloured by <b>{_e(label)}</b>, "
+           f"thalweg points as dots; axes in map units of the result's CRS{note}.")
+    return f'<section class="panel"><h2>Map</h2>{_figure_html(uri, "map", cap)}</section>'
