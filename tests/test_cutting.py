@@ -31,7 +31,8 @@ import pytest
 import shapely
 
 from reachgauge import CrossSection
-from reachgauge.transects import cutting, sampler
+from reachgauge.inputs import sampler
+from reachgauge.transects import cutting
 from reachgauge.config import RunConfig
 from reachgauge.batch.pipeline import cut_all
 from reachgauge.transects.cutting import CuttingParams, ReachSections, cut_reach

@@ -57,7 +57,7 @@ def test_vrt_mosaic_reads_like_the_single_file(valley, tmp_path):
     many = load_network(cfg_for(valley, path).replace(dem=vrt))
     assert many.raster.res == one.raster.res and many.raster.bounds == one.raster.bounds
     pts = shapely.get_coordinates(LINE.segmentize(7.0))
-    from reachgauge.transects import sampler
+    from reachgauge.inputs import sampler
     with open_raster(one.raster) as a, open_raster(many.raster) as b:
         np.testing.assert_array_equal(sampler.sample(a, pts).z, sampler.sample(b, pts).z)
 
@@ -222,7 +222,7 @@ def test_feet_vertical_and_feet_crs(tmp_path):
     a = load_network(RunConfig(dem=m.path, streams=path))
     b = load_network(RunConfig(dem=ft.path, streams=path, vertical_units="ft"))
     assert b.raster.z_factor == 0.3048
-    from reachgauge.transects import sampler
+    from reachgauge.inputs import sampler
     pts = shapely.get_coordinates(LINE.segmentize(9.0))
     with open_raster(a.raster) as da, open_raster(b.raster) as db:
         np.testing.assert_allclose(sampler.sample(db, pts, z_factor=b.raster.z_factor).z,

@@ -15,7 +15,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import ndimage
 
-from reachgauge.transects import sampler
+from reachgauge.inputs import sampler
 from terrain_fixtures import north_up
 
 X0, Y0 = 1000.0, 2000.0

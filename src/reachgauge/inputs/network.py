@@ -61,7 +61,7 @@ from rasterio.enums import Resampling
 from rasterio.vrt import WarpedVRT
 from shapely.ops import substring
 
-from reachgauge.transects import sampler
+from reachgauge.inputs import sampler
 from reachgauge.errors import InputError, ReachgaugeWarning
 from reachgauge.manning import FOOT
 

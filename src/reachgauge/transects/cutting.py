@@ -38,7 +38,8 @@ import pandas as pd
 import shapely
 
 from reachgauge import flags as F
-from reachgauge.transects import sampler, slope, stations, thalweg
+from reachgauge.inputs import sampler
+from reachgauge.transects import slope, stations, thalweg
 from reachgauge.errors import InputError
 from reachgauge.inputs.network import Reach, RasterInfo
 from reachgauge.kernel.crosssection import CrossSection

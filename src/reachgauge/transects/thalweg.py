@@ -7,7 +7,7 @@ centreline for the lowest ground, and the transect is then re-centred on it.
 Method (ours, from common practice):
 
 1. The terrain window is first cleared of single-pixel pits
-   (:func:`reachgauge.transects.sampler.fill_single_pits`), so a lone blunder pixel is
+   (:func:`reachgauge.inputs.sampler.fill_single_pits`), so a lone blunder pixel is
    never taken for the channel.
 2. On the sampled profile, the *lowest run* is found: the contiguous stretch
    around the lowest sample whose elevations lie within :data:`TIE_TOLERANCE`
