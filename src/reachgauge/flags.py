@@ -8,6 +8,8 @@ results that were computed but deserve a look. Codes are our own.
 
 from __future__ import annotations
 
+import numpy as np
+
 # status codes: the item produced no figures
 REACH_STATUS = {
     "ok": "processed",
@@ -72,6 +74,24 @@ def join(codes) -> str:
             if part and part not in seen:
                 seen.append(part)
     return ";".join(seen)
+
+
+def join_columns(columns, t: int, base=None) -> np.ndarray:
+    """';'-joined codes of ``t`` items from ``(code, mask)`` columns, in column order,
+    vectorised over the items (the format of :func:`join`). ``base``: existing
+    ';'-joined strings to extend."""
+    out = np.full(t, "", dtype=object) if base is None else np.array(base, dtype=object)
+    for code, mask in columns:
+        sep = np.where(out == "", "", ";")
+        out = np.where(np.asarray(mask, dtype=bool), out + sep + code, out)
+    return out
+
+
+def concat(a, b) -> np.ndarray:
+    """Two arrays of ';'-joined codes joined item by item, vectorised."""
+    a = np.asarray(a, dtype=object)
+    b = np.asarray(b, dtype=object)
+    return np.where(a == "", b, np.where(b == "", a, a + ";" + b))
 
 
 def markdown() -> str:

@@ -168,7 +168,6 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     reach = rs.reach
     rid = str(reach.reach_id)
     t = len(rs.chainage)
-    tflags = [list(filter(None, str(f).split(";"))) for f in rs.transect_flags]
     slope = np.asarray(rs.slope, dtype=float)
     slope = np.where(np.isfinite(slope) & (slope > 0), slope, params.min_slope)
 
@@ -180,8 +179,6 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     ok &= p.valid
     banks = np.column_stack([picks.left_bank, picks.right_bank])
     banks = np.where(np.isfinite(banks), banks, np.column_stack([p.first_offset, p.last_offset]))
-    for i in range(t):
-        tflags[i].extend(picks.flags[i])
     summary = bankfull.summarise_reach(picks.depth[ok], picks.stage[ok])
     outlier = np.zeros(t, bool)
     outlier[np.nonzero(ok)[0]] = summary.outliers
@@ -195,10 +192,6 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
         n[:, 1] = n_cal
         n_src = np.full(t, "calibrated", dtype=object)
     unusual = (n[:, 1] < roughness.TABLE_RANGE[0]) | (n[:, 1] > roughness.TABLE_RANGE[1])
-    for code, mask in (("bankfull-outlier", outlier), ("n-unknown-class", unknown),
-                       ("n-unusual", unusual)):
-        for i in np.nonzero(mask)[0]:
-            tflags[i].append(code)
 
     bf = _bankfull_figures(p, picks, slope, n, ok)
     depths = rating.rating_depths(params.rating, summary.median_depth)
@@ -206,7 +199,11 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     stages = rating.stage_table(p, rid, rs.chainage, params.rating, slope, n, banks, ok)
     design, checks, reach_flows = _design(p, rid, rs.chainage, inputs.flows, slope, n, banks,
                                           bf, ok)
-    out_names = _flow_flags(checks, tflags)
+    pick_codes = np.array([flags.join(f) for f in picks.flags], dtype=object).reshape(t)
+    out_any, over_any, flows_out = _flow_results(checks, t)
+    columns = [("bankfull-outlier", outlier), ("n-unknown-class", unknown), ("n-unusual", unusual),
+               ("out-of-bank", out_any), ("over-profile", over_any)]
+    codes = flags.concat(np.asarray(rs.transect_flags, dtype=object).reshape(t), pick_codes)
     tr = pd.DataFrame({
         "reach_id": rid, "station": np.arange(t), "chainage": np.asarray(rs.chainage, float),
         "status": np.asarray(rs.transect_status, dtype=object), "flags": "",
@@ -218,9 +215,9 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
         "n_channel": n[:, 1], "n_overbank_left": n[:, 0], "n_overbank_right": n[:, 2],
         "n_source": n_src, **bf, "n_observed": n_obs,
         "min_freeboard": capacity.least_freeboard(checks, t),
-        "flows_out": [";".join(v) for v in out_names],
+        "flows_out": flows_out,
     })
-    tr["flags"] = [flags.join(f) for f in tflags]
+    tr["flags"] = flags.join_columns(columns, t, codes)
     tr = tr[[c for c in schema.TRANSECT_FIELDS if c in tr.columns]]
     reach_row = _reach_row(rs, tr, ok, summary, n, n_src, n_cal, picks, outlier, reach_flows)
     profile = rs.profile.copy()
@@ -231,18 +228,20 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
                        sections_z=np.where(inside, p.z, np.nan), offsets=np.where(inside, p.x, np.nan))
 
 
-def _flow_flags(checks, tflags) -> list:
-    """Add the design-flow flags to each transect's codes; the names of the flows
-    out of bank at each transect."""
-    out_names = [[] for _ in tflags]
-    for i, flow, out, over in zip(checks["index"], checks["flow"], checks["out_of_bank"],
-                                  checks["over_profile"]):
-        if out:
-            out_names[i].append(flow)
-            tflags[i].append("out-of-bank")
-        if over:
-            tflags[i].append("over-profile")
-    return out_names
+def _flow_results(checks, t: int):
+    """Per transect: any design flow out of bank, any over the transect's ends, and
+    the ';'-joined names of the flows out of bank."""
+    idx = checks["index"].to_numpy(int)
+    out = checks["out_of_bank"].to_numpy(bool)
+    over = checks["over_profile"].to_numpy(bool)
+    out_any = np.bincount(idx[out], minlength=t) > 0
+    over_any = np.bincount(idx[over], minlength=t) > 0
+    names = []
+    for flow, grp in checks.groupby("flow", sort=False):   # a handful of flows
+        mask = np.zeros(t, bool)
+        mask[grp["index"].to_numpy(int)[grp["out_of_bank"].to_numpy(bool)]] = True
+        names.append((str(flow), mask))
+    return out_any, over_any, flags.join_columns(names, t)
 
 
 def _spread(cand):

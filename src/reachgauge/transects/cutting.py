@@ -221,7 +221,7 @@ def _cut(ds, raster, reach, cfg, neighbours):
     fit = slope.profile_slopes(st.chainage, z_used, cfg.slope_window, cfg.min_slope)
     flag_cols += [("carved", carved), ("flat-reach", fit.floored),
                   ("water-surface", np.full(t, water))]
-    tflags = _join_flags(flag_cols, t)
+    tflags = F.join_columns(flag_cols, t)
 
     ok = status == "ok"
     rstatus, rmsg = ("ok", reach.message) if ok.any() else (
@@ -238,16 +238,6 @@ def _cut(ds, raster, reach, cfg, neighbours):
         reach_left=lim.left, reach_right=lim.right, slope_source=cfg.slope_source,
         reach_flags=F.join(["flat-reach"] * fit.reach_floored + ["water-surface"] * water),
         sample_step=float(u[1] - u[0]), left_normal=st.left, xy_factor=f)
-
-
-def _join_flags(columns, t):
-    """';'-joined codes per transect from (code, mask) columns, vectorised over
-    transects (flags.join's format)."""
-    out = np.full(t, "", dtype=object)
-    for code, mask in columns:
-        sep = np.where(out == "", "", ";")
-        out = np.where(mask, out + sep + code, out)
-    return out
 
 
 def _scale_array(geoms, k):
