@@ -45,7 +45,7 @@ def fake_reach(t=10, step=0.5, half=15.0, bad=(7,)):
         reach=reach, status="ok", message="", chainage=chain, offsets=x, elevations=elev,
         transects=lines, thalweg_xy=np.column_stack([chain, np.zeros(t)]), thalweg_z=bed,
         thalweg_shift=np.zeros(t), transect_status=status, transect_flags=np.array([""] * t),
-        slope=np.full(t, SLOPE), reach_slope=SLOPE,
+        slope=np.full(t, SLOPE), reach_slope=SLOPE, reach_left=np.full(t, half),
         profile=pd.DataFrame({"chainage": chain, "z_raw": bed, "z_carved": bed, "z_used": bed}))
 
 

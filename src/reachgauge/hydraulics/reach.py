@@ -174,7 +174,9 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     area_km2 = _drainage_area(params, rid, reach.attributes)
     ok = np.asarray(rs.transect_status, dtype=object) == "ok"
     z = np.where(ok[:, None], np.asarray(rs.elevations, dtype=float), np.nan)
-    picks = bankfull.pick_all(K.profiles(rs.offsets, z), params.bankfull, area_km2)
+    # the water is connected to the thalweg the transect was re-centred on (its middle)
+    centre = np.full(t, (np.asarray(rs.offsets).size - 1) // 2)
+    picks = bankfull.pick_all(K.profiles(rs.offsets, z, centre), params.bankfull, area_km2)
     p = picks.profiles
     ok &= p.valid
     banks = np.column_stack([picks.left_bank, picks.right_bank])
@@ -204,6 +206,7 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     columns = [("bankfull-outlier", outlier), ("n-unknown-class", unknown), ("n-unusual", unusual),
                ("out-of-bank", out_any), ("over-profile", over_any)]
     codes = flags.concat(np.asarray(rs.transect_flags, dtype=object).reshape(t), pick_codes)
+    start = _line_start(rs, t)
     tr = pd.DataFrame({
         "reach_id": rid, "station": np.arange(t), "chainage": np.asarray(rs.chainage, float),
         "status": np.asarray(rs.transect_status, dtype=object), "flags": "",
@@ -211,7 +214,7 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
         "slope": slope,
         "bankfull_method": np.where(picks.confidence != "", picks.method, ""),
         "confidence": picks.confidence,
-        "bank_left": banks[:, 0], "bank_right": banks[:, 1], "method_spread": _spread(picks.candidates),
+        "bank_left": banks[:, 0] - start, "bank_right": banks[:, 1] - start, "method_spread": _spread(picks.candidates),
         "n_channel": n[:, 1], "n_overbank_left": n[:, 0], "n_overbank_right": n[:, 2],
         "n_source": n_src, **bf, "n_observed": n_obs,
         "min_freeboard": capacity.least_freeboard(checks, t),
@@ -225,7 +228,8 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     inside = np.arange(p.x.shape[1])[None, :] < p.size[:, None]
     return ReachResult(reach=reach_row, transects=tr, rating=curves, stages=stages, design=design,
                        calibration=cal, profile=profile, banks=banks,
-                       sections_z=np.where(inside, p.z, np.nan), offsets=np.where(inside, p.x, np.nan))
+                       sections_z=np.where(inside, p.z, np.nan),
+                       offsets=np.where(inside, p.x - start[:, None], np.nan))
 
 
 def _flow_results(checks, t: int):
@@ -276,6 +280,14 @@ def _reach_row(rs, tr, ok, summary, n, n_src, n_cal, picks, outlier, reach_flows
         "flows_out": ";".join(reach_flows.loc[reach_flows.out_of_bank, "flow"]) if has_flows else "",
         "worst_ratio": float(reach_flows["q_ratio"].max()) if has_flows else np.nan,
     }
+
+
+def _line_start(rs, t: int) -> np.ndarray:
+    """Offset (m, in the sampling frame: 0 at the uncut left end) of the start of
+    each written transect line: a transect cut back on the left starts later, and
+    offsets in the results are measured along the line as written."""
+    half = 0.5 * float(np.asarray(rs.offsets)[-1])
+    return half - np.asarray(rs.reach_left, dtype=float).reshape(t)
 
 
 def _thalweg_z(rs, p, ok):

@@ -43,8 +43,8 @@ class Profiles:
 
     x, z (t, m): offsets (increasing within a row's valid points) and elevations;
     points past ``size`` repeat the last valid one. size (t,): valid points.
-    i0 (t,): index of the thalweg (the first lowest point); thalweg (t,): its
-    elevation. left_max, right_max (t, m): running maxima of the ground walking out
+    i0 (t,): index of the thalweg (the point given, else the first lowest point);
+    thalweg (t,): its elevation. left_max, right_max (t, m): running maxima of the ground walking out
     from the thalweg (entry k is the highest ground within k points), +inf past the
     profile's end. cz, cl (t, m): integrals from the left end of (z − thalweg) dx
     and of ground length, at each point. Build with :func:`profiles`.
@@ -97,11 +97,17 @@ class Profiles:
         return Profiles(*(getattr(self, f)[rows] for f in self.__dataclass_fields__))
 
 
-def profiles(offset, elevation) -> Profiles:
+def profiles(offset, elevation, thalweg=None) -> Profiles:
     """Build :class:`Profiles` from offsets (m,) shared or (t, m) per profile, and
     elevations (t, m) or (m,). NaN elevations are dropped (the ground line bridges
     the gap linearly). Offsets must increase along each row; callers check input
-    (see :class:`~reachgauge.kernel.crosssection.CrossSection`)."""
+    (see :class:`~reachgauge.kernel.crosssection.CrossSection`).
+
+    ``thalweg`` (t,): column of each row's thalweg, where the caller knows it (a
+    transect re-centred on the channel's lowest point: a deeper ditch or pond
+    elsewhere on the transect is not the channel, and the water must be connected
+    to the channel's thalweg). Default, or where that point has no elevation: the
+    row's first lowest point."""
     z = np.array(elevation, dtype=float, ndmin=2)
     x = np.broadcast_to(np.asarray(offset, dtype=float), z.shape)
     ok = np.isfinite(z) & np.isfinite(x)
@@ -122,6 +128,10 @@ def profiles(offset, elevation) -> Profiles:
 
     k = np.arange(m)[None, :]
     i0 = np.argmin(np.where(k < size[:, None], z, np.inf), axis=1)
+    if thalweg is not None:   # the given column, counted among the valid points
+        col = np.broadcast_to(np.asarray(thalweg, dtype=int), (t,))
+        given = ok[np.arange(t), col]
+        i0 = np.where(given, np.cumsum(ok, axis=1)[np.arange(t), col] - 1, i0)
     base = np.arange(t)[:, None] * m
     zf = z.ravel()
     zt = zf.take(base[:, 0] + i0)

@@ -42,8 +42,9 @@ TRANSECT_FIELDS = {
     "confidence": ("text", "confidence in the bankfull stage: high, medium or low"),
     "bankfull_stage": ("length", "bankfull water-surface elevation"),
     "bankfull_depth": ("length", "bankfull stage minus thalweg elevation"),
-    "bank_left": ("length", "offset of the left water edge at bankfull, from the transect's left end"),
-    "bank_right": ("length", "offset of the right water edge at bankfull"),
+    "bank_left": ("length", "offset of the left bank along the transect line as written, from its "
+                            "start (a transect cut short starts at its cut end)"),
+    "bank_right": ("length", "offset of the right bank along the transect line as written"),
     "method_spread": ("length", "range of the bankfull depths given by the automatic methods"),
     "n_channel": ("n", "Manning's n of the channel"),
     "n_overbank_left": ("n", "Manning's n of the left overbank"),
