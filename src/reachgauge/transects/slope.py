@@ -16,15 +16,31 @@ in terrain conditioning, e.g. Lindsay, J. B., 2016, "Efficient hybrid
 breaching-filling sink removal methods for flow path enforcement in digital
 elevation models", Hydrological Processes 30(6) [memory].)
 
-*Fitting.* Slope at each station is the Theil–Sen estimate (the median of the
-slopes between all pairs of points; Theil, H., 1950, "A rank-invariant method
-of linear and polynomial regression analysis", Proc. KNAW 53; Sen, P. K., 1968,
+*Fitting.* Slope at each station is a Theil–Sen estimate (the median of the
+slopes between pairs of points; Theil, H., 1950, "A rank-invariant method of
+linear and polynomial regression analysis", Proc. KNAW 53; Sen, P. K., 1968,
 "Estimates of the regression coefficient based on Kendall's tau", JASA 63)
-over the stations within ``window / 2`` of it; the reach slope is the Theil–Sen
-estimate over the whole reach. A robust fit lets a few bad thalweg picks pass
-without bending the line. Slopes are returned positive (a drop downstream),
-dimensionless, and never below the floor ``min_slope``; stations whose fit fell
-below it are flagged.
+over the valid stations within ``window / 2`` of it, with a bounded number of
+pairs so that its cost per station does not grow with station density:
+
+- a window of n stations with at most :data:`PAIR_BUDGET` pairs uses every
+  pair: the exact Theil–Sen estimate (n ≤ 32; e.g. the default 200 m window at
+  5–20 m spacing);
+- a larger window uses only the pairs at least half the window apart (index
+  lag ≥ ⌈(n − 1)/2⌉, the long baselines that carry the information, as in
+  Theil's own abbreviated method, which pairs point i with point i + n/2
+  [memory]), thinned to :data:`PAIR_BUDGET` pairs spread evenly over them.
+
+The estimate is the same kind (a median of pair slopes, robust to a few bad
+thalweg picks). Measured on a straight grade with Gaussian noise and a 200 m
+window (``benchmarks/bench_slope.py``), its spread about the true slope is
+1.01×, 1.17× and 1.10× the exact estimate's at 5, 1 and 0.5 m spacing (41, 201
+and 401 stations a window), and it differs from the exact estimate by about
+half of that estimate's own standard error (rms); its cost is
+O(t · PAIR_BUDGET) for t stations, where the exact one's is O(t · n²). The reach slope is the same estimate over the
+whole reach with :data:`REACH_PAIR_BUDGET` pairs (exact up to 632 stations).
+Slopes are returned positive (a drop downstream), dimensionless, and never
+below the floor ``min_slope``; stations whose fit fell below it are flagged.
 
 Chainage is measured along the digitised line, as the stations are; a jagged
 line is a little longer than the channel it follows (a 1 m wobble every 10 m adds
@@ -33,18 +49,21 @@ about 1 %), which makes the slope that much lower.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
 
 # A station counts as carved when carving lowered it by more than this (m):
 # about the size of lidar noise on open ground, so noise alone is not flagged.
 CARVE_TOLERANCE = 0.05
 
-# Pairs evaluated at once by the windowed Theil–Sen fit (bounds memory).
-_BLOCK_PAIRS = 1_000_000
+# Pairs per station window: at most this many slopes enter each station's median,
+# so the cost per station is bounded whatever the station spacing.
+PAIR_BUDGET = 512
+# The same bound for the one fit over the whole reach: every pair up to 632 points.
+REACH_PAIR_BUDGET = 200_000
+# Slopes held at once (rows × pairs) by the windowed fit (bounds memory).
+_BLOCK = 1 << 20
 
 
 def carve(chainage, z, tol=CARVE_TOLERANCE):
@@ -69,52 +88,100 @@ def carve(chainage, z, tol=CARVE_TOLERANCE):
     return out, carved
 
 
-def theil_sen_windows(chainage, z, window):
-    """Theil–Sen slope dz/dchainage at each point over the points within
-    ``window / 2`` of it (signed: negative where z falls downstream).
+def theil_sen_windows(chainage, z, window, budget=None):
+    """Slope dz/dchainage at each point over the valid points within
+    ``window / 2`` of it (signed: negative where z falls downstream), by the
+    bounded Theil–Sen estimate of the module docstring.
 
-    Vectorised over points: each point's window is a slice of the sorted
-    chainage, all pairwise slopes of all windows are one 3-D array (in blocks).
-    NaN where a window holds fewer than two valid points.
+    ``chainage`` (t,) m, increasing; ``z`` (t,) m, NaN where no data (a point
+    without data still gets the slope of its window); ``window`` m. ``budget``
+    bounds the pairs per window (default :data:`PAIR_BUDGET`). NaN where a
+    window holds fewer than two valid points. Vectorised over points: the cost
+    is O(t · budget) at any spacing.
     """
     c = np.asarray(chainage, dtype=float)
     z = np.asarray(z, dtype=float)
-    t = c.size
-    out = np.full(t, np.nan)
-    if t == 0:
-        return out
-    lo = np.searchsorted(c, c - window / 2, side="left")
-    hi = np.searchsorted(c, c + window / 2, side="right")
-    w = int((hi - lo).max())
-    pair = np.triu(np.ones((w, w), dtype=bool), k=1)
-    block = max(1, _BLOCK_PAIRS // max(1, w * w))
-    for s in range(0, t, block):
-        sl = slice(s, min(s + block, t))
-        idx = lo[sl, None] + np.arange(w)[None, :]
-        inwin = idx < hi[sl, None]
-        idx = np.minimum(idx, t - 1)
-        cc = c[idx]
-        zz = np.where(inwin, z[idx], np.nan)
-        dc = cc[:, None, :] - cc[:, :, None]
-        dz = zz[:, None, :] - zz[:, :, None]
-        good = pair[None] & (dc > 0) & np.isfinite(dz)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            slopes = np.where(good, dz / np.where(dc > 0, dc, 1.0), np.nan)
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)  # empty windows stay NaN
-            out[sl] = np.nanmedian(slopes.reshape(slopes.shape[0], -1), axis=1)
-    return out
+    ok = np.isfinite(z) & np.isfinite(c)
+    cv, zv = c[ok], z[ok]
+    lo = np.searchsorted(cv, c - window / 2, side="left")
+    hi = np.searchsorted(cv, c + window / 2, side="right")
+    return _median_pair_slopes(cv, zv, lo, hi - lo, budget or PAIR_BUDGET)
 
 
 def reach_fit(chainage, z) -> float:
-    """Theil–Sen slope dz/dchainage over the whole reach
-    (:func:`scipy.stats.theilslopes`); NaN with fewer than two valid points."""
+    """Slope dz/dchainage over the whole reach, by the same estimate with
+    :data:`REACH_PAIR_BUDGET` pairs (the exact Theil–Sen estimate, as
+    :func:`scipy.stats.theilslopes`, up to 632 valid points); NaN with fewer
+    than two valid points."""
     c = np.asarray(chainage, dtype=float)
     z = np.asarray(z, dtype=float)
     ok = np.isfinite(z) & np.isfinite(c)
     if ok.sum() < 2 or np.ptp(c[ok]) == 0:
         return float("nan")
-    return float(stats.theilslopes(z[ok], c[ok]).slope)
+    order = np.argsort(c[ok], kind="stable")
+    cv, zv = c[ok][order], z[ok][order]
+    return float(_median_pair_slopes(cv, zv, np.zeros(1, np.int64), np.array([cv.size]),
+                                     REACH_PAIR_BUDGET)[0])
+
+
+def _median_pair_slopes(c, z, lo, n, budget):
+    """Median pair slope of each window ``c[lo:lo+n]`` (all arrays; ``c``
+    sorted, no NaN), over the pairs of :func:`_pairs`; NaN for n < 2."""
+    out = np.full(lo.size, np.nan)
+    if c.size < 2 or lo.size == 0:
+        return out
+    step = max(1, _BLOCK // budget)
+    for s in range(0, lo.size, step):
+        sl = slice(s, s + step)
+        # the pairs depend on the window size only: design each size once
+        sizes, which = np.unique(n[sl], return_inverse=True)
+        i, j, valid = (x[which] for x in _pairs(sizes, budget))
+        a = np.minimum(lo[sl, None] + i, c.size - 1)
+        b = np.minimum(lo[sl, None] + j, c.size - 1)
+        dc = c[b] - c[a]
+        good = valid & (dc > 0)
+        if not good.any():
+            continue
+        # NaN sorts last, so the k valid slopes of a row come first
+        slopes = np.sort(np.where(good, (z[b] - z[a]) / np.where(good, dc, 1.0), np.nan), axis=1)
+        k = good.sum(axis=1)
+        mid = np.stack([np.maximum(k - 1, 0) // 2, k // 2], axis=1)
+        med = np.take_along_axis(slopes, mid, axis=1).mean(axis=1)
+        out[sl] = np.where(k > 0, med, np.nan)
+    return out
+
+
+def _pairs(n, budget):
+    """Index pairs ``(i, j)``, ``i < j``, into windows of ``n`` points (array,
+    one window a row): every pair when there are at most ``budget`` of them,
+    otherwise the pairs at least half a window apart (lag ≥ ⌈(n−1)/2⌉), thinned
+    to ``budget`` spread evenly over their lexicographic order.
+
+    Returns ``(i, j, valid)``, each (rows, P) with P ≤ ``budget``; the pair
+    number q of a row is mapped to its (i, j) in closed form, so no Python
+    loop runs per window.
+    """
+    n = np.asarray(n, dtype=np.int64)
+    every = n * (n - 1) // 2 <= budget
+    lag = np.where(every, 1, np.maximum(1, n // 2))              # n // 2 = ⌈(n−1)/2⌉
+    rows = np.maximum(n - lag, 0)                                # i runs over 0..rows−1
+    total = rows * (rows + 1) // 2                               # row i holds rows − i pairs
+    width = int(min(budget, total.max(initial=0)))
+    k = np.arange(width, dtype=np.int64)[None, :]
+    thin = total[:, None] > width
+    q = np.where(thin, ((2 * k + 1) * total[:, None]) // (2 * max(width, 1)), k)
+    valid = q < total[:, None]
+    q = np.where(valid, q, 0)
+    # q lies in row i when start(i) ≤ q < start(i + 1), start(i) = i (2·rows − i + 1) / 2
+    def start(r):
+        return r * (2 * rows[:, None] - r + 1) // 2
+
+    b = 2 * rows[:, None] + 1
+    i = np.floor((b - np.sqrt(np.maximum(b * b - 8 * q, 0))) / 2).astype(np.int64)
+    i = np.where(start(i) > q, i - 1, i)           # guard the square root's rounding
+    i = np.where(start(i + 1) <= q, i + 1, i)
+    j = i + lag[:, None] + (q - start(i))
+    return i, j, valid
 
 
 @dataclass(frozen=True)
