@@ -39,7 +39,7 @@ FLAGS = {
     "crosses-neighbour": "transect crosses a neighbouring transect or another stream",
     "snap-far": "thalweg found far from the digitised centreline (near the snap limit)",
     "flat-reach": "slope below the floor; the floor was used",
-    "carved": "thalweg elevation lowered by carving a hump out of the profile",
+    "carved": "thalweg elevation moved by conditioning the profile (a hump breached or a pit filled)",
     # bankfull (bankfull issue)
     "methods-disagree": "bankfull methods disagree by more than the tolerance",
     "no-clear-break": "no clear break in the section's shape: low confidence in bankfull",
@@ -53,6 +53,10 @@ FLAGS = {
     "n-unknown-class": "a land-cover class under the transect has no n in the table",
     # appended by the GIS issue
     "water-surface": "slope fitted to the water surface of hydro-flattened terrain, not to the bed",
+    # appended by the profile-conditioning change (issue 9)
+    "reshaped-profile": "conditioning moved a large share of the reach's stations far (humps "
+                        "breached, pits filled): the slope describes a reshaped profile, "
+                        "perhaps ground with no continuous channel",
 }
 
 

@@ -217,7 +217,8 @@ def _cut(ds, raster, reach, cfg, neighbours):
     z_raw = np.where(status != "no-data", tw.level if water else tz, np.nan)
     z_carved, carved = slope.carve(st.chainage, z_raw)
     z_used = z_carved if cfg.carve else z_raw
-    carved = carved & bool(cfg.carve)  # only a carving that is used lowers a station
+    carved = carved & bool(cfg.carve)  # only a carving that is used moves a station
+    reshaped = bool(cfg.carve) and slope.reshaped(z_raw, z_carved)
     fit = slope.profile_slopes(st.chainage, z_used, cfg.slope_window, cfg.min_slope)
     flag_cols += [("carved", carved), ("flat-reach", fit.floored),
                   ("water-surface", np.full(t, water))]
@@ -236,7 +237,8 @@ def _cut(ds, raster, reach, cfg, neighbours):
         thalweg_xy=centre / f, thalweg_z=tz, thalweg_shift=tw.shift, transect_status=status,
         transect_flags=tflags, slope=fit.station, reach_slope=fit.reach, profile=profile,
         reach_left=lim.left, reach_right=lim.right, slope_source=cfg.slope_source,
-        reach_flags=F.join(["flat-reach"] * fit.reach_floored + ["water-surface"] * water),
+        reach_flags=F.join(["flat-reach"] * fit.reach_floored + ["water-surface"] * water
+                           + ["reshaped-profile"] * reshaped),
         sample_step=float(u[1] - u[0]), left_normal=st.left, xy_factor=f)
 
 
