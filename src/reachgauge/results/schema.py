@@ -159,7 +159,7 @@ PROFILE_FIELDS = {
     "reach_id": ("text", "reach identifier"),
     "chainage": ("length", "distance from the reach's upstream end"),
     "z_raw": ("length", "thalweg elevation as sampled"),
-    "z_carved": ("length", "thalweg elevation after carving humps"),
+    "z_carved": ("length", "thalweg elevation after conditioning: humps breached, pits filled (least change)"),
     "z_used": ("length", "elevation the slope was fitted to"),
 }
 
@@ -231,7 +231,7 @@ LAYER_NOTES = {
     "rating_curves": "table, one row per transect and stage; station -1 is the reach's median curve.",
     "stage_figures": "table, figures at the stages asked for with --depths / --elevations.",
     "design_checks": "table, one row per transect and design flow; station -1 rows summarise the reach.",
-    "profile": "table, the longitudinal thalweg profile of each reach, raw and carved.",
+    "profile": "table, the longitudinal thalweg profile of each reach, raw and conditioned.",
     "calibration": "table, measured flows matched to transects and the n they imply.",
     "sample_sections": "table, ground points of a few transects per reach (for plots).",
     "run_info": "table of key and value: parameters, units, versions, input fingerprints.",
