@@ -72,14 +72,12 @@ from reachgauge.hydraulics.bankfull.scales import (BREAK_RISE_FLOOR, MAX_STAGES,
                                                    NOISE_MULTIPLE, profile_noise)
 from reachgauge.hydraulics.bankfull.summary import ReachBankfull, summarise_reach
 
-
 __all__ = [
-    "AUTOMATIC_METHODS", "USER_METHODS", "DEFAULT_METHOD", "SQ_MILE_KM2", "FLAT_TOLERANCE",
-    "BREAK_RISE_FLOOR", "NOISE_MULTIPLE", "MIN_DEPTH_MULTIPLE", "MIN_RUN_SAMPLES", "MAX_STAGES",
-    "SPREAD_FRACTION", "BENCH_RATIO", "WIDTH_DEPTH_PROMINENCE", "HYDRAULIC_DEPTH_PROMINENCE",
-    "PLATEAU_FRACTION", "TOLERANCE_FLOOR", "TOLERANCE_FRACTION",
-    "BankfullPick", "BankfullParams", "Picks", "ReachBankfull",
-    "pick_bankfull", "pick_all", "candidate_stages", "candidates", "profile_noise",
-    "regional_depth", "regional_coef_to_si", "summarise_reach",
-    "flat_thalweg_width", "is_flat_thalweg", "baseflow_correct", "correct_profiles",
+    "AUTOMATIC_METHODS", "BENCH_RATIO", "BREAK_RISE_FLOOR", "DEFAULT_METHOD", "FLAT_TOLERANCE",
+    "HYDRAULIC_DEPTH_PROMINENCE", "MAX_STAGES", "MIN_DEPTH_MULTIPLE", "MIN_RUN_SAMPLES",
+    "NOISE_MULTIPLE", "PLATEAU_FRACTION", "SPREAD_FRACTION", "SQ_MILE_KM2", "TOLERANCE_FLOOR",
+    "TOLERANCE_FRACTION", "USER_METHODS", "WIDTH_DEPTH_PROMINENCE", "BankfullParams",
+    "BankfullPick", "Picks", "ReachBankfull", "baseflow_correct", "candidate_stages",
+    "candidates", "correct_profiles", "flat_thalweg_width", "is_flat_thalweg", "pick_all",
+    "pick_bankfull", "profile_noise", "regional_coef_to_si", "regional_depth", "summarise_reach",
 ]

@@ -115,7 +115,8 @@ def first_marked(y, first, last, min_prominence) -> np.ndarray:
         return out
     v = y[r, c]
     mag = np.abs(v)
-    need = min_prominence * np.where(mag > 0, mag, np.inf)
+    with np.errstate(invalid="ignore"):         # 0 × inf: a zero prominence asked of a zero value
+        need = min_prominence * np.where(mag > 0, mag, np.inf)
     left, right = _side_minima(y, first, last)
     # the upper bound rules most noise peaks out before the exact walk
     maybe = v - np.maximum(left[r, c], right[r, c]) >= need
