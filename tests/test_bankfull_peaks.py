@@ -132,3 +132,17 @@ def test_row_searchsorted_and_interp_match_numpy(seed):
         xi, zi = x[i, :size[i]], z[i, :size[i]]
         np.testing.assert_array_equal(cnt[i], np.searchsorted(xi, xq[i], side="right"))
         np.testing.assert_array_equal(zq[i], np.interp(xq[i], xi, zi))
+
+
+@pytest.mark.parametrize("seed", RNG_SEEDS)
+def test_first_passing_finds_the_same_first_candidate_as_testing_all(seed):
+    # definition: the first candidate of each row that passes, candidates in row order
+    rng = np.random.default_rng(seed)
+    r = np.sort(rng.integers(0, 50, 300))
+    passes = rng.random(300) < 0.3
+    ok = rows.first_passing(r, lambda q: passes[q])
+    assert not (ok & ~passes).any()
+    for i in np.unique(r):
+        want = np.flatnonzero(passes[r == i])
+        got = np.flatnonzero(ok[r == i])
+        assert got[:1].tolist() == want[:1].tolist(), i

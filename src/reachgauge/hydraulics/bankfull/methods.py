@@ -151,8 +151,12 @@ def bench(c: Curves) -> np.ndarray:
     if r.size == 0:
         return out
     ends = first[r] + np.maximum(i - first[r] - c.lag[r], 1)
-    ref = R.prefix_median(index, r, first[r], ends)
-    ok = index[r, i] >= BENCH_RATIO * np.maximum(ref, 1e-12)
+
+    def marked(q):
+        ref = R.prefix_median(index, r[q], first[r[q]], ends[q])
+        return index[r[q], i[q]] >= BENCH_RATIO * np.maximum(ref, 1e-12)
+
+    ok = R.first_passing(r, marked)
     rows, at = np.unique(r[ok], return_index=True)
     out[rows] = c.stage[rows, i[ok][at]]
     return out

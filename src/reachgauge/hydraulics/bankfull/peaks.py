@@ -41,6 +41,25 @@ def local_maxima(y, first, last) -> np.ndarray:
     k = np.arange(n)[None, :]
     first = np.asarray(first)[:, None]
     last = np.asarray(last)[:, None]
+    out = np.zeros((t, n), dtype=bool)
+    if n < 3:
+        return out
+    inner = (k[:, 1:-1] > first) & (k[:, 1:-1] < last)
+    with np.errstate(invalid="ignore"):
+        out[:, 1:-1] = inner & (y[:, :-2] < y[:, 1:-1]) & (y[:, 2:] < y[:, 1:-1])
+        # a row with two equal neighbours in its slice may hold a plateau
+        ties = ((y[:, 1:] == y[:, :-1]) & (k[:, 1:] > first) & (k[:, 1:] <= last)).any(axis=1)
+    if ties.any():
+        rows = np.nonzero(ties)[0]
+        out[rows] = _plateau_maxima(y[rows], first[rows], last[rows])
+    return out
+
+
+def _plateau_maxima(y, first, last) -> np.ndarray:
+    """:func:`local_maxima` of rows that may hold plateaus: each run of equal values
+    found by its start and end, the peak at its middle."""
+    t, n = y.shape
+    k = np.arange(n)[None, :]
     inside = (k >= first) & (k <= last)
     nan = np.full((t, 1), np.nan)
     prev = np.concatenate([nan, y[:, :-1]], axis=1)
@@ -121,7 +140,7 @@ def first_marked(y, first, last, min_prominence) -> np.ndarray:
     # the upper bound rules most noise peaks out before the exact walk
     maybe = v - np.maximum(left[r, c], right[r, c]) >= need
     r, c, need = r[maybe], c[maybe], need[maybe]
-    ok = prominences(y, r, c, first[r], last[r]) >= need
+    ok = R.first_passing(r, lambda q: prominences(y, r[q], c[q], first[r[q]], last[r[q]]) >= need[q])
     r, c = r[ok], c[ok]
     if r.size == 0:
         return out

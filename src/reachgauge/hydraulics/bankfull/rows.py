@@ -29,6 +29,27 @@ def first_true(mask) -> np.ndarray:
     return np.where(mask.any(axis=1), mask.argmax(axis=1), -1)
 
 
+def first_passing(rows, test) -> np.ndarray:
+    """Which candidates pass ``test`` (a function of an index array into the
+    candidates, returning bools), where only the first passing candidate of each row
+    matters: ``rows`` (q,) sorted, the candidates in order along each row. The first
+    candidate of every row is tested, then the others only in rows where it failed
+    (False where not tested). Most rows settle on their first candidate, so most
+    candidates are never tested; the answer for the first passing one is the same."""
+    rows = np.asarray(rows)
+    ok = np.zeros(rows.size, dtype=bool)
+    if rows.size == 0:
+        return ok
+    lead = np.ones(rows.size, dtype=bool)
+    lead[1:] = rows[1:] != rows[:-1]
+    ok[lead] = test(np.nonzero(lead)[0])
+    failed = np.zeros(int(rows.max()) + 1, dtype=bool)
+    failed[rows[lead & ~ok]] = True
+    rest = np.nonzero(failed[rows] & ~lead)[0]
+    ok[rest] = test(rest)
+    return ok
+
+
 def median(values, valid) -> np.ndarray:
     """Median of the ``valid`` entries of each row of ``values`` (t, n), as
     ``np.median`` gives it for that row alone (mean of the two middle values for an
