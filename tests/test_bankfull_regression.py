@@ -341,6 +341,18 @@ def test_pick_all_matches_the_per_transect_reference_on_the_fixture_families(met
     assert_same(new, old, xs, zs, method)
 
 
+def test_small_row_blocks_give_the_same_picks(monkeypatch):
+    # blocks of a few rows (and chunked prominence walks and medians) change only the
+    # memory bound, never an answer
+    p = K.profiles(*pad(family_rows(range(2))))
+    whole = bankfull.pick_all(p, bankfull.BankfullParams("bench"))
+    monkeypatch.setattr(bankfull.rows, "CHUNK_CELLS", 1500)
+    small = bankfull.pick_all(p, bankfull.BankfullParams("bench"))
+    np.testing.assert_array_equal(small.candidates, whole.candidates)
+    np.testing.assert_array_equal(small.stage, whole.stage)
+    assert small.flags == whole.flags
+
+
 def test_pick_all_with_baseflow_matches_the_reference():
     p = K.profiles(*pad(family_rows(range(2))))
     new = bankfull.pick_all(p, bankfull.BankfullParams(baseflow_depth=0.3))

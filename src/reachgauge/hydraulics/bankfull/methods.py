@@ -43,7 +43,6 @@ class Curves:
     stage: np.ndarray
     top_width: np.ndarray
     area: np.ndarray
-    span: np.ndarray            # right − left water edge, 0 where dry
     hydraulic_depth: np.ndarray
     count: np.ndarray
     step: np.ndarray
@@ -66,8 +65,7 @@ def curves(p: K.Profiles, sc: Scales, rows) -> Curves:
     # must see the curve turn just beyond the end to find it.
     below = ((stage <= (sc.top[rows] + rise)[:, None]) & (k < count[:, None])).sum(axis=1)
     last = np.minimum(below - 1, count - 1 - lag)
-    return Curves(stage, w.top_width, w.area, np.nan_to_num(w.right_edge - w.left_edge, nan=0.0),
-                  w.hydraulic_depth, count, sc.step[rows], lag, sc.first[rows], last,
+    return Curves(stage, w.top_width, w.area, w.hydraulic_depth, count, sc.step[rows], lag, sc.first[rows], last,
                   sc.min_run[rows], sc.top[rows])
 
 
@@ -82,12 +80,14 @@ def bank_top(c: Curves) -> np.ndarray:
     into a surface wide on the channel's scale is the lower bank top. Within that
     window the break is the stage where the run is half done.
     """
-    b, n = c.span.shape
+    b, n = c.top_width.shape
     k = np.arange(n)[None, :]
     lag = c.lag[:, None]
-    run = np.take_along_axis(c.span, np.minimum(k + lag, n - 1), axis=1) - c.span
+    # the span between the water's edges is the top width (kernel: T = x_r − x_l)
+    span = c.top_width
+    run = np.take_along_axis(span, np.minimum(k + lag, n - 1), axis=1) - span
     hit = (k >= c.first[:, None]) & (k <= c.last[:, None]) & \
-        (run >= np.maximum(SPREAD_FRACTION * c.top_width, c.min_run[:, None]))
+        (run >= np.maximum(SPREAD_FRACTION * span, c.min_run[:, None]))
     j = R.first_true(hit)
     out = np.full(b, np.nan)
     rows = np.nonzero(j >= 0)[0]
@@ -95,8 +95,8 @@ def bank_top(c: Curves) -> np.ndarray:
         return out
     j, lag = j[rows], c.lag[rows]
     o = np.arange(int(lag.max()) + 1)[None, :]
-    win = c.span[rows[:, None], np.minimum(j[:, None] + o, n - 1)]
-    w0, w1 = win[:, 0], c.span[rows, j + lag]
+    win = span[rows[:, None], np.minimum(j[:, None] + o, n - 1)]
+    w0, w1 = win[:, 0], span[rows, j + lag]
     m = j + R.first_true((win >= (w0 + 0.5 * (w1 - w0))[:, None]) & (o <= lag[:, None]))
     st = c.stage[rows]
     mid = 0.5 * (st[np.arange(rows.size), np.maximum(m - 1, 0)] + st[np.arange(rows.size), m])

@@ -13,10 +13,8 @@ tests/test_bankfull_peaks.py):
   peak (the definition of scipy.signal.find_peaks);
 - its *prominence* is its height above the higher of the two lowest points
   reached walking from it to either side until ground higher than the peak (or
-  the end of the slice; a NaN also stops the walk): the definition of
-  scipy.signal.peak_prominences with no window (Palshikar, G. K., 2009, "Simple
-  algorithms for peak detection in time-series" [memory], for prominence as a
-  peak's height above its surroundings).
+  the end of the slice; a NaN also stops the walk): the topographic prominence,
+  as scipy.signal.peak_prominences defines it with no window (common practice).
 
 Cost: a few passes over the array for the peaks; each prominence one pass over its
 row (done only for peaks that an upper bound cannot rule out).
@@ -79,8 +77,9 @@ def _plateau_maxima(y, first, last) -> np.ndarray:
 def prominences(y, rows, cols, first, last) -> np.ndarray:
     """Prominence of the peaks at (``rows``, ``cols``) of ``y``, each searched
     within its row's [first, last] (arrays per peak), as
-    scipy.signal.peak_prominences gives it on the row's slice. Peaks are taken in
-    chunks of whole rows of at most :data:`~reachgauge.hydraulics.bankfull.rows.CHUNK_CELLS` cells."""
+    scipy.signal.peak_prominences gives it on the row's slice. The peaks' rows are
+    gathered in chunks of at most :data:`~reachgauge.hydraulics.bankfull.rows.CHUNK_CELLS`
+    cells."""
     y = np.asarray(y, dtype=float)
     n = y.shape[1]
     k = np.arange(n)[None, :]
@@ -138,7 +137,8 @@ def first_marked(y, first, last, min_prominence) -> np.ndarray:
         need = min_prominence * np.where(mag > 0, mag, np.inf)
     left, right = _side_minima(y, first, last)
     # the upper bound rules most noise peaks out before the exact walk
-    maybe = v - np.maximum(left[r, c], right[r, c]) >= need
+    with np.errstate(invalid="ignore"):
+        maybe = v - np.maximum(left[r, c], right[r, c]) >= need
     r, c, need = r[maybe], c[maybe], need[maybe]
     ok = R.first_passing(r, lambda q: prominences(y, r[q], c[q], first[r[q]], last[r[q]]) >= need[q])
     r, c = r[ok], c[ok]

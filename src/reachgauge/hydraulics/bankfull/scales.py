@@ -108,17 +108,20 @@ def scales(p: Profiles) -> Scales:
     return Scales(sigma, rise, lo, top, step, count, lag, first, min_run, searched)
 
 
-def blocks(count, rows, cells: int = R.CHUNK_CELLS):
+def blocks(count, rows, cells: int | None = None):
     """Split ``rows`` into blocks of rows whose (rows × largest count) stays within
-    ``cells``, rows of similar count together (sorted by count, so a block wastes
-    little on padding). Yields arrays of row indices."""
+    ``cells`` (default :data:`~reachgauge.hydraulics.bankfull.rows.CHUNK_CELLS`),
+    rows of similar count together (sorted by count, so a block wastes little on
+    padding). Yields arrays of row indices."""
+    cells = R.CHUNK_CELLS if cells is None else cells
     rows = np.asarray(rows)
     order = rows[np.argsort(count[rows], kind="stable")]
     c = count[order]
     i = 0
     while i < order.size:
         # sorted ascending: a block's largest count is its last
-        size = (np.arange(1, order.size - i + 1)) * np.maximum(c[i:], 1)
+        ahead = c[i:i + cells]                  # a block holds at most `cells` rows
+        size = np.arange(1, ahead.size + 1) * np.maximum(ahead, 1)
         j = i + max(1, int(np.searchsorted(size, cells, side="right")))
         yield order[i:j]
         i = j
