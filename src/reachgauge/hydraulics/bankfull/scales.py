@@ -1,0 +1,135 @@
+"""Scales of the bankfull shape tests and the trial stages, for every profile at once.
+
+Each scale comes from the profile itself, so noisy and clean DEMs are read alike:
+
+- the *noise* σ: a robust estimate of the elevation scatter about the local ground
+  line (normal-scaled median absolute deviation of the residuals about each pair of
+  neighbours; Rousseeuw, P. J. & Croux, C., 1993, "Alternatives to the median absolute
+  deviation", JASA 88 [memory], for the MAD as a robust scale);
+- the *break rise* δ = max(5 cm, 3σ): the rise of stage over which a break must show
+  (below 3σ a noise spike on a bank can hold the water edge back);
+- breaks are sought only at depths of at least 2δ, because within a few σ of the
+  thalweg the water spreads over the (noisy or flat) bed itself, which every shape
+  criterion would otherwise take for a floodplain.
+
+Trial stages: per profile, even steps of a fifth of δ or finer (at least 200 over
+the profile's depth, at most :data:`MAX_STAGES`) from the thalweg to two break rises
+past the lower end of the profile; :func:`stage_grid` lays the stages of a block of
+profiles out as one (rows, K) array, each row with its own step, valid up to its own
+count.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from reachgauge.hydraulics.bankfull import rows as R
+from reachgauge.kernel.sections import Profiles
+
+BREAK_RISE_FLOOR = 0.05    # m: smallest rise of stage over which a break must show
+NOISE_MULTIPLE = 3.0       # break rise = max(floor, 3 σ)
+MIN_DEPTH_MULTIPLE = 2.0   # breaks sought at depths >= 2 × break rise
+MIN_RUN_SAMPLES = 3        # a floodplain edge runs at least 3 sample steps (one is a noise dip)
+MAX_STAGES = 4000          # trial stages per profile at most
+
+
+def noise(p: Profiles) -> np.ndarray:
+    """Robust elevation scatter σ (m) of each profile about its local ground line (t,).
+
+    Each interior point is compared with the straight line through its two
+    neighbours; for independent errors of standard deviation σ that residual has
+    variance σ²(1 + w² + (1−w)²), w the point's fractional position between its
+    neighbours. σ is the normal-scaled median absolute deviation of the normalised
+    residuals (:func:`reachgauge.hydraulics.bankfull.rows.mad`, the same figure as
+    scipy.stats.median_abs_deviation per row), which ignores the few vertices where
+    the true ground bends. 0 for a clean or hydro-flattened profile and for a
+    profile of fewer than 3 points.
+    """
+    x, z = p.x, p.z
+    t, m = z.shape
+    if m < 3:
+        return np.zeros(t)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        w = (x[:, 1:-1] - x[:, :-2]) / (x[:, 2:] - x[:, :-2])
+        r = z[:, 1:-1] - (z[:, :-2] + w * (z[:, 2:] - z[:, :-2]))
+        r = r / np.sqrt(1.0 + w * w + (1.0 - w) ** 2)
+    valid = np.arange(m - 2)[None, :] < (p.size - 2)[:, None]
+    return np.where(p.size >= 3, R.mad(r, valid), 0.0)
+
+
+def profile_noise(section) -> float:
+    """σ (m) of one :class:`~reachgauge.kernel.crosssection.CrossSection`: the
+    one-row view of :func:`noise`."""
+    return float(noise(section.profiles)[0])
+
+
+@dataclass(frozen=True)
+class Scales:
+    """Scales and trial-stage layout of t profiles (arrays (t,)).
+
+    noise σ, rise δ (m); lo, top (m): thalweg and lower end of the profile;
+    step (m) between trial stages, count of them; lag: δ in steps; first: first
+    stage index searched (depth ≥ 2δ); min_run (m): shortest run of a water edge
+    that can be a floodplain (3 median sample steps); searched: the profile is
+    deep enough (relief > 2δ) to hold a break at all.
+    """
+
+    noise: np.ndarray
+    rise: np.ndarray
+    lo: np.ndarray
+    top: np.ndarray
+    step: np.ndarray
+    count: np.ndarray
+    lag: np.ndarray
+    first: np.ndarray
+    min_run: np.ndarray
+    searched: np.ndarray
+
+
+def scales(p: Profiles) -> Scales:
+    """The :class:`Scales` of every profile of ``p`` (invalid ones are not searched)."""
+    sigma = noise(p)
+    rise = np.maximum(BREAK_RISE_FLOOR, NOISE_MULTIPLE * sigma)
+    lo, top = p.thalweg, p.top
+    relief = top - lo
+    searched = p.valid & (relief > MIN_DEPTH_MULTIPLE * rise)
+    # rows not searched get a harmless layout (one step, no stages)
+    relief = np.where(searched, relief, 1.0)
+    step = np.minimum(rise / 5.0, relief / 200.0)
+    step = np.maximum(step, (relief + 2 * rise) / MAX_STAGES)
+    count = np.where(searched, np.ceil((relief + 2 * rise) / step).astype(np.int64) + 1, 0)
+    lag = np.maximum(1, np.rint(rise / step).astype(np.int64))
+    first = np.ceil(MIN_DEPTH_MULTIPLE * rise / step).astype(np.int64)
+    dx = np.diff(p.x, axis=1)
+    ok = np.arange(dx.shape[1])[None, :] < (p.size - 1)[:, None]
+    min_run = MIN_RUN_SAMPLES * R.median(dx, ok)
+    return Scales(sigma, rise, lo, top, step, count, lag, first, min_run, searched)
+
+
+def blocks(count, rows, cells: int | None = None):
+    """Split ``rows`` into blocks of rows whose (rows × largest count) stays within
+    ``cells`` (default :data:`~reachgauge.hydraulics.bankfull.rows.CHUNK_CELLS`),
+    rows of similar count together (sorted by count, so a block wastes little on
+    padding). Yields arrays of row indices."""
+    cells = R.CHUNK_CELLS if cells is None else cells
+    rows = np.asarray(rows)
+    order = rows[np.argsort(count[rows], kind="stable")]
+    c = count[order]
+    i = 0
+    while i < order.size:
+        # sorted ascending: a block's largest count is its last
+        ahead = c[i:i + cells]                  # a block holds at most `cells` rows
+        size = np.arange(1, ahead.size + 1) * np.maximum(ahead, 1)
+        j = i + max(1, int(np.searchsorted(size, cells, side="right")))
+        yield order[i:j]
+        i = j
+
+
+def stage_grid(sc: Scales, rows) -> np.ndarray:
+    """Trial stages of ``rows`` as one (rows, K) array, K their largest count:
+    stage k of row i is lo_i + step_i · k (valid for k < count_i; the stages past a
+    row's count continue the same steps and are not searched)."""
+    k = np.arange(int(sc.count[rows].max(initial=1)))
+    return sc.lo[rows, None] + sc.step[rows, None] * k[None, :]
