@@ -146,3 +146,18 @@ def test_min_freeboard_is_unknown_when_a_flow_has_no_stage():
     d = only.design[(only.design.station >= 0)].set_index("station")
     ok = only.transects[only.transects.status == "ok"].set_index("station")
     np.testing.assert_allclose(ok.min_freeboard, d.loc[ok.index, "freeboard"])
+
+
+def test_a_deeper_ditch_beyond_the_thalweg_search_is_not_the_channel():
+    # a 2 m wide ditch 0.6 m deeper than the channel bed, 11 m from the centre line;
+    # the thalweg was sought within 5 m of the line (the transect's snap distance), so
+    # the section is the channel's: its bed is the thalweg and its banks give bankfull
+    rs = fake_reach()
+    x = rs.offsets
+    ditch = np.abs(x - 4.0) <= 1.0
+    rs.elevations = np.where(ditch[None, :], rs.thalweg_z[:, None] - 0.6, rs.elevations)
+    rs.snap = 5.0
+    res = _analyse(rs, RunConfig(n=0.035))
+    ok = res.transects[res.transects.status == "ok"]
+    np.testing.assert_allclose(ok.thalweg_z, rs.thalweg_z[ok.station], atol=1e-9)
+    assert ok.bankfull_depth.to_numpy() == pytest.approx(H, abs=0.05)

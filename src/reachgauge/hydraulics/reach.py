@@ -174,9 +174,8 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     area_km2 = _drainage_area(params, rid, reach.attributes)
     ok = np.asarray(rs.transect_status, dtype=object) == "ok"
     z = np.where(ok[:, None], np.asarray(rs.elevations, dtype=float), np.nan)
-    # the water is connected to the thalweg the transect was re-centred on (its middle)
-    centre = np.full(t, (np.asarray(rs.offsets).size - 1) // 2)
-    picks = bankfull.pick_all(K.profiles(rs.offsets, z, centre), params.bankfull, area_km2)
+    picks = bankfull.pick_all(K.profiles(rs.offsets, z, _channel_thalweg(rs, z)), params.bankfull,
+                              area_km2)
     p = picks.profiles
     ok &= p.valid
     banks = np.column_stack([picks.left_bank, picks.right_bank])
@@ -280,6 +279,20 @@ def _reach_row(rs, tr, ok, summary, n, n_src, n_cal, picks, outlier, reach_flows
         "flows_out": ";".join(reach_flows.loc[reach_flows.out_of_bank, "flow"]) if has_flows else "",
         "worst_ratio": float(reach_flows["q_ratio"].max()) if has_flows else np.nan,
     }
+
+
+def _channel_thalweg(rs, z) -> np.ndarray:
+    """Column of each transect's thalweg: the lowest sample within the thalweg search
+    distance of the middle (where the transect was re-centred on the channel). A
+    deeper ditch or pond further out is not this channel: the water of the section
+    is the water connected to this point."""
+    x = np.asarray(rs.offsets, dtype=float)
+    snap = getattr(rs, "snap", np.nan)
+    if x.size == 0:
+        return np.zeros(len(z), dtype=int)
+    near = np.abs(x - 0.5 * x[-1]) <= (snap if np.isfinite(snap) else np.inf) + 1e-9
+    zz = np.where(near[None, :] & np.isfinite(z), z, np.inf)
+    return np.argmin(zz, axis=1)
 
 
 def _line_start(rs, t: int) -> np.ndarray:

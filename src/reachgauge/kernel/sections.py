@@ -247,7 +247,7 @@ def wet(p: Profiles, stage) -> Wet:
     base = np.arange(t)[:, None] * m
     xf, zf, czf, clf = p.x.ravel(), p.z.ravel(), p.cz.ravel(), p.cl.ravel()
     h = s - zt
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(all="ignore"):  # dry and spilled cells divide by 0; masked below
         # left edge: on the segment (j, j+1), j the first point out of the water
         j = base + np.clip(i0 - cl_, 0, np.maximum(last - 1, 0))
         zj, zj1 = zf.take(j), zf.take(j + 1)

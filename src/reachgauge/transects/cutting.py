@@ -66,6 +66,7 @@ class ReachSections:
     transect's left end is at offset ``half-width − reach_left``, not 0; use
     :meth:`sample_points` for the position of every sample). ``left_normal``
     (t, 2): unit vectors toward the left bank.
+    ``snap`` m: the thalweg was sought this far either side of the digitised line.
     ``profile``: one row per station — chainage, z_raw (thalweg, or water level),
     z_carved, z_used (carved when ``carve`` is on), carved (bool), slope.
     """
@@ -93,6 +94,7 @@ class ReachSections:
     sample_step: float = math.nan
     left_normal: np.ndarray = field(default_factory=lambda: np.zeros((0, 2)))
     xy_factor: float = 1.0  # metres per work-CRS unit
+    snap: float = math.nan  # m: the thalweg was sought this far either side of the line
 
     @property
     def slope_flags(self) -> str:
@@ -239,7 +241,7 @@ def _cut(ds, raster, reach, cfg, neighbours):
         reach_left=lim.left, reach_right=lim.right, slope_source=cfg.slope_source,
         reach_flags=F.join(["flat-reach"] * fit.reach_floored + ["water-surface"] * water
                            + ["reshaped-profile"] * reshaped),
-        sample_step=float(u[1] - u[0]), left_normal=st.left, xy_factor=f)
+        sample_step=float(u[1] - u[0]), left_normal=st.left, xy_factor=f, snap=snap)
 
 
 def _scale_array(geoms, k):
