@@ -200,11 +200,10 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     stages = rating.stage_table(p, rid, rs.chainage, params.rating, slope, n, banks, ok)
     design, checks, reach_flows = _design(p, rid, rs.chainage, inputs.flows, slope, n, banks,
                                           bf, ok)
-    pick_codes = np.array([flags.join(f) for f in picks.flags], dtype=object).reshape(t)
     out_any, over_any, flows_out = _flow_results(checks, t)
     columns = [("bankfull-outlier", outlier), ("n-unknown-class", unknown), ("n-unusual", unusual),
                ("out-of-bank", out_any), ("over-profile", over_any)]
-    codes = flags.concat(np.asarray(rs.transect_flags, dtype=object).reshape(t), pick_codes)
+    codes = flags.concat(np.asarray(rs.transect_flags, dtype=object).reshape(t), picks.codes)
     start = _line_start(rs, t)
     tr = pd.DataFrame({
         "reach_id": rid, "station": np.arange(t), "chainage": np.asarray(rs.chainage, float),

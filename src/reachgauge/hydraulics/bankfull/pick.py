@@ -35,6 +35,7 @@ _FLAG_BITS = ("no-clear-break", "spills-first", "methods-disagree", "no-clear-br
 _FLAG_SETS = np.empty(1 << len(_FLAG_BITS), dtype=object)
 _FLAG_SETS[:] = [tuple(f for i, f in enumerate(_FLAG_BITS) if code >> i & 1)
                  for code in range(_FLAG_SETS.size)]
+_FLAG_TEXT = np.array([";".join(f) for f in _FLAG_SETS], dtype=object)
 _CONFIDENCE = np.array(["", "low", "medium", "high"], dtype=object)
 
 
@@ -109,6 +110,7 @@ class Picks:
     break_rise: np.ndarray
     method: str
     profiles: object
+    codes: np.ndarray = None   # (t,) the flags ';'-joined
 
 
 def check_args(method, fixed_depth=None, drainage_area_km2=None, regional_coef=None,
@@ -205,7 +207,7 @@ def _pick(p: K.Profiles, method, user_depth=None, tolerance=None) -> Picks:
         confidence=_CONFIDENCE[np.where(ok, level, 0)], flags=_FLAG_SETS[np.where(ok, bits, 0)].tolist(),
         candidates=valid(cand.T).T, fallback=np.where(ok, fallback, "").astype(object),
         tolerance=valid(tol), noise=valid(sc.noise), break_rise=valid(sc.rise),
-        method=method, profiles=p)
+        method=method, profiles=p, codes=_FLAG_TEXT[np.where(ok, bits, 0)])
 
 
 def pick_all(p, params: BankfullParams, drainage_area_km2=None) -> Picks:
