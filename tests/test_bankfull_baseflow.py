@@ -137,3 +137,48 @@ def test_baseflow_over_a_reach_corrects_each_row_closed_form():
             cs = CrossSection(q.x[j, :n], q.z[j, :n])
             # everything below the old flat bed is the added parabola
             assert float(cs.geometry(0.0).area) == pytest.approx(want, rel=tol)
+
+
+def _reach(sections):
+    """Profiles of several fixture sections (one reach)."""
+    m = max(s.section.offset.size for s in sections)
+    x = np.full((len(sections), m), np.nan)
+    z = np.full((len(sections), m), np.nan)
+    for i, s in enumerate(sections):
+        n = s.section.offset.size
+        x[i, :n], z[i, :n] = s.section.offset, s.section.elevation
+    return K.profiles(x, z)
+
+
+def test_baseflow_leaves_sections_with_a_bed_alone():
+    # noisy lidar ground (5 cm) is bed, not water: no correction, the same picks as
+    # without baseflow. Before, every section was deepened, the noise scale collapsed
+    # on the smooth synthetic bed and the picks fell on it (about 100.0 m instead of
+    # the built bank top at 101.5 m, rated "high")
+    from reachgauge.hydraulics import bankfull
+
+    p = _reach([compound_channel(noise=0.05, seed=s) for s in range(5)])
+    plain = bankfull.pick_all(p, bankfull.BankfullParams())
+    with_bf = bankfull.pick_all(p, bankfull.BankfullParams(baseflow_depth=0.3))
+    np.testing.assert_allclose(with_bf.stage, plain.stage)
+    assert not any("baseflow-added" in c for c in with_bf.codes)
+    # the built bank top, within the 3σ break rise (0.15 m) of this noise
+    assert np.all(np.abs(with_bf.stage - 101.5) < 0.15)
+
+
+def test_baseflow_corrects_the_flat_water_sections_and_flags_them():
+    # hydro-flattened: the channel bottom is the water surface, flat to the mm; the
+    # banks and plains keep 3 cm of lidar noise. With 0.3 m of water added back the
+    # bankfull stage stays at the built bank top (101.5 m) within the break rise
+    # (max(5 cm, 3σ) = 9 cm), the depth is measured from the new bed (0.3 m lower)
+    from reachgauge.hydraulics import bankfull
+
+    flat = [compound_channel(noise=0.03, seed=s, flat_bed=True) for s in range(3)]
+    noisy = [compound_channel(noise=0.03, seed=10 + s) for s in range(2)]
+    p = _reach(flat + noisy)
+    got = bankfull.pick_all(p, bankfull.BankfullParams(baseflow_depth=0.3))
+    added = np.array(["baseflow-added" in c for c in got.codes])
+    assert added.tolist() == [True, True, True, False, False]
+    assert np.all(np.abs(got.stage - 101.5) < 0.09 + 0.03)
+    np.testing.assert_allclose(got.profiles.thalweg[:3], 100.0 - 0.3, atol=1e-3)
+    np.testing.assert_allclose(got.profiles.thalweg[3:], p.thalweg[3:])

@@ -353,11 +353,9 @@ def test_small_row_blocks_give_the_same_picks(monkeypatch):
     assert small.flags == whole.flags
 
 
-def test_pick_all_with_baseflow_matches_the_reference():
-    p = K.profiles(*pad(family_rows(range(2))))
-    new = bankfull.pick_all(p, bankfull.BankfullParams(baseflow_depth=0.3))
-    old, xs, zs = r_pick_all(p, bankfull.DEFAULT_METHOD, baseflow_depth=0.3)
-    assert_same(new, old, xs, zs, "baseflow")
+# The baseflow correction changed on purpose (issue 9: only flat sections are
+# corrected, with the terrain's noise scale): the reference is no longer the answer
+# there; tests/test_bankfull_baseflow.py checks the new behaviour.
 
 
 @st.composite
@@ -375,12 +373,11 @@ def ground_lines(draw):
 
 
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(st.lists(ground_lines(), min_size=1, max_size=12), st.sampled_from(R_METHODS),
-       st.sampled_from([0.0, 0.2]))
-def test_property_pick_all_matches_the_reference_on_random_ground(rows, method, baseflow):
+@given(st.lists(ground_lines(), min_size=1, max_size=12), st.sampled_from(R_METHODS))
+def test_property_pick_all_matches_the_reference_on_random_ground(rows, method):
     p = K.profiles(*pad(rows))
-    new = bankfull.pick_all(p, bankfull.BankfullParams(method, baseflow_depth=baseflow))
-    old, xs, zs = r_pick_all(p, method, baseflow_depth=baseflow)
+    new = bankfull.pick_all(p, bankfull.BankfullParams(method))
+    old, xs, zs = r_pick_all(p, method)
     assert_same(new, old, xs, zs, method)
 
 

@@ -45,6 +45,8 @@ FLAGS = {
     "no-clear-break": "no clear break in the section's shape: low confidence in bankfull",
     "spills-first": "the section spills over an end of the profile before a bank break",
     "flat-thalweg": "flat thalweg: likely the water surface at the flight, not the bed",
+    "baseflow-added": "the unseen channel under the flat water surface was added back "
+                      "(baseflow depth); its figures include it",
     "bankfull-outlier": "bankfull depth far from the reach median",
     # capacity and roughness (bankfull issue)
     "out-of-bank": "a design flow leaves the channel",

@@ -114,12 +114,15 @@ def _bed_points(p: K.Profiles, rows, tolerance):
 
 
 def correct_profiles(p: K.Profiles, depth=None, area=None,
-                     tolerance: float = FLAT_TOLERANCE) -> K.Profiles:
-    """:func:`baseflow_correct` of every valid profile of ``p`` at once (invalid ones
-    are kept as they are). ``depth`` (m) or ``area`` (m²): scalar or one per profile
-    (exactly one of them). Returns new :class:`~reachgauge.kernel.sections.Profiles`,
-    each row the bed points inserted and lowered."""
-    rows = np.nonzero(p.valid)[0]
+                     tolerance: float = FLAT_TOLERANCE, where=None) -> K.Profiles:
+    """:func:`baseflow_correct` of the valid profiles of ``p`` at once (``where``
+    (t,) bool: only those; invalid ones are kept as they are). ``depth`` (m) or
+    ``area`` (m²): scalar or one per profile (exactly one of them). Returns new
+    :class:`~reachgauge.kernel.sections.Profiles`, each corrected row the bed points
+    inserted and lowered; every row keeps its thalweg (a corrected row's is the
+    lowest point of its new bed)."""
+    chosen = p.valid if where is None else p.valid & np.asarray(where, dtype=bool)
+    rows = np.nonzero(chosen)[0]
     a, b, xa, xb, xn, length = _bed_points(p, rows, tolerance)
     x, z, size = p.x[rows], p.z[rows], p.size[rows]
     half = 0.5 * (xb - xa)
@@ -156,7 +159,9 @@ def correct_profiles(p: K.Profiles, depth=None, area=None,
     Z[rows] = np.nan
     X[rows, :k.shape[1]] = np.where(valid, xo, np.nan)
     Z[rows, :k.shape[1]] = np.where(valid, zo, np.nan)
-    return K.profiles(X, Z)
+    thalweg = p.i0.copy()                       # rows are written without gaps
+    thalweg[rows] = np.argmin(np.where(in_bed, zo, np.inf), axis=1)
+    return K.profiles(X, Z, thalweg)
 
 
 def baseflow_correct(section: CrossSection, depth=None, area=None,

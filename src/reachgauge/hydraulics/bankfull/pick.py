@@ -18,7 +18,7 @@ from reachgauge.hydraulics.bankfull import baseflow, methods
 from reachgauge.hydraulics.bankfull import rows as R
 from reachgauge.hydraulics.bankfull.methods import AUTOMATIC_METHODS
 from reachgauge.hydraulics.bankfull.regional import finite, regional_depth
-from reachgauge.hydraulics.bankfull.scales import scales
+from reachgauge.hydraulics.bankfull.scales import MIN_DEPTH_MULTIPLE, scales
 from reachgauge.kernel import sections as K
 from reachgauge.kernel.crosssection import CrossSection
 
@@ -31,7 +31,7 @@ TOLERANCE_FLOOR = 0.1
 TOLERANCE_FRACTION = 0.1
 # flag codes by bit, in the order a pick lists them
 _FLAG_BITS = ("no-clear-break", "spills-first", "methods-disagree", "no-clear-break",
-              "flat-thalweg")
+              "flat-thalweg", "baseflow-added")
 _FLAG_SETS = np.empty(1 << len(_FLAG_BITS), dtype=object)
 _FLAG_SETS[:] = [tuple(f for i, f in enumerate(_FLAG_BITS) if code >> i & 1)
                  for code in range(_FLAG_SETS.size)]
@@ -111,6 +111,7 @@ class Picks:
     method: str
     profiles: object
     codes: np.ndarray = None   # (t,) the flags ';'-joined
+    bits: np.ndarray = None    # (t,) the flags as bits of _FLAG_BITS
 
 
 def check_args(method, fixed_depth=None, drainage_area_km2=None, regional_coef=None,
@@ -178,10 +179,13 @@ def _banks_and_flat(p, cand, stage, rise, user):
     return w.left_edge[:, 0], w.right_edge[:, 0], baseflow.flat_rows(p, channel)
 
 
-def _pick(p: K.Profiles, method, user_depth=None, tolerance=None) -> Picks:
-    """Picks of every profile of ``p`` (arguments already checked)."""
+def _pick(p: K.Profiles, method, user_depth=None, tolerance=None, sigma=None, floor=None,
+          added=None) -> Picks:
+    """Picks of every profile of ``p`` (arguments already checked). ``sigma``,
+    ``floor``: see :func:`~reachgauge.hydraulics.bankfull.scales.scales`; ``added``
+    (t,) bool: rows whose unseen channel was added back (flagged)."""
     ok = p.valid
-    sc = scales(p)
+    sc = scales(p, sigma, floor)
     cand = methods.candidates(p, sc)
     stage, missed, fallback = _stage(p, cand, method, user_depth)
     user = method in USER_METHODS
@@ -196,7 +200,8 @@ def _pick(p: K.Profiles, method, user_depth=None, tolerance=None) -> Picks:
     disagree = (n_found > 0) & ~agree
     few = (2 * n_found <= len(AUTOMATIC_METHODS)) & ~missed
     left, right, flat = _banks_and_flat(p, cand, stage, sc.rise, user)
-    bits = missed * 1 + spills * 2 + disagree * 4 + few * 8 + flat * 16
+    added = np.zeros(p.count, bool) if added is None else np.asarray(added, dtype=bool)
+    bits = missed * 1 + spills * 2 + disagree * 4 + few * 8 + flat * 16 + added * 32
     level = np.where(missed | spills | few, 1, np.where((n_found >= 3) & agree, 3, 2))
 
     def valid(a):
@@ -207,7 +212,8 @@ def _pick(p: K.Profiles, method, user_depth=None, tolerance=None) -> Picks:
         confidence=_CONFIDENCE[np.where(ok, level, 0)], flags=_FLAG_SETS[np.where(ok, bits, 0)].tolist(),
         candidates=valid(cand.T).T, fallback=np.where(ok, fallback, "").astype(object),
         tolerance=valid(tol), noise=valid(sc.noise), break_rise=valid(sc.rise),
-        method=method, profiles=p, codes=_FLAG_TEXT[np.where(ok, bits, 0)])
+        method=method, profiles=p, codes=_FLAG_TEXT[np.where(ok, bits, 0)],
+        bits=np.where(ok, bits, 0))
 
 
 def pick_all(p, params: BankfullParams, drainage_area_km2=None) -> Picks:
@@ -219,11 +225,22 @@ def pick_all(p, params: BankfullParams, drainage_area_km2=None) -> Picks:
     bounded size)."""
     check_args(params.method, params.fixed_depth, drainage_area_km2, params.regional_coef,
                params.regional_exp)
-    if params.baseflow_depth > 0:
-        p = baseflow.correct_profiles(p, depth=finite(params.baseflow_depth, "baseflow depth"))
-    return _pick(p, params.method, _user_depth(params.method, params.fixed_depth,
-                                               drainage_area_km2, params.regional_coef,
-                                               params.regional_exp))
+    user = _user_depth(params.method, params.fixed_depth, drainage_area_km2,
+                       params.regional_coef, params.regional_exp)
+    first = _pick(p, params.method, user)
+    if not params.baseflow_depth > 0:
+        return first
+    # Only sections whose bottom is flat water are corrected (Smart, Bind & Duncan 2009:
+    # lidar sees the water surface, not the bed); their picks keep the noise of the
+    # terrain (the synthetic bed is smooth) and search from the old water surface up.
+    flat = (first.bits & (1 << _FLAG_BITS.index("flat-thalweg"))) > 0
+    if not flat.any():
+        return first
+    sc = scales(p)
+    corrected = baseflow.correct_profiles(p, depth=finite(params.baseflow_depth, "baseflow depth"),
+                                          where=flat)
+    floor = np.where(flat, p.thalweg + MIN_DEPTH_MULTIPLE * sc.rise, np.nan)
+    return _pick(corrected, params.method, user, sigma=sc.noise, floor=floor, added=flat)
 
 
 def _user_depth(method, fixed_depth, drainage_area_km2, coef, exp):

@@ -88,9 +88,14 @@ class Scales:
     searched: np.ndarray
 
 
-def scales(p: Profiles) -> Scales:
-    """The :class:`Scales` of every profile of ``p`` (invalid ones are not searched)."""
-    sigma = noise(p)
+def scales(p: Profiles, sigma=None, floor=None) -> Scales:
+    """The :class:`Scales` of every profile of ``p`` (invalid ones are not searched).
+
+    ``sigma`` (t,): the noise to use instead of the profile's own (a profile whose
+    bed was replaced by a smooth synthetic one keeps the noise of its terrain);
+    ``floor`` (t,): the lowest stage searched, if higher than thalweg + 2δ (the old
+    water surface of a corrected profile + 2δ)."""
+    sigma = noise(p) if sigma is None else np.asarray(sigma, dtype=float)
     rise = np.maximum(BREAK_RISE_FLOOR, NOISE_MULTIPLE * sigma)
     lo, top = p.thalweg, p.top
     relief = top - lo
@@ -101,7 +106,10 @@ def scales(p: Profiles) -> Scales:
     step = np.maximum(step, (relief + 2 * rise) / MAX_STAGES)
     count = np.where(searched, np.ceil((relief + 2 * rise) / step).astype(np.int64) + 1, 0)
     lag = np.maximum(1, np.rint(rise / step).astype(np.int64))
-    first = np.ceil(MIN_DEPTH_MULTIPLE * rise / step).astype(np.int64)
+    start = MIN_DEPTH_MULTIPLE * rise
+    if floor is not None:
+        start = np.maximum(start, np.nan_to_num(np.asarray(floor, dtype=float) - lo, nan=0.0))
+    first = np.ceil(start / step).astype(np.int64)
     dx = np.diff(p.x, axis=1)
     ok = np.arange(dx.shape[1])[None, :] < (p.size - 1)[:, None]
     min_run = MIN_RUN_SAMPLES * R.median(dx, ok)
