@@ -161,3 +161,23 @@ def test_a_target_inside_a_jump_is_marked():
     assert sol.stage[0] == pytest.approx(2.0, abs=1e-6)
     assert q_at < 15.0 and sol.at_jump[0]
     assert K.flow(p, sol.stage + 1e-6, 0.001, 0.035).discharge[0, 0] > 15.0
+
+
+def test_cross_section_warns_when_the_stage_sits_at_a_jump():
+    from reachgauge.errors import ReachgaugeWarning
+
+    cs = CrossSection([0, 2, 4, 6, 8, 10, 15, 45, 50], [3, 1, 0, 0, 1, 2, .5, .5, 3])
+    with pytest.warns(ReachgaugeWarning, match="tops a bank"):
+        assert cs.stage_for_discharge(15.0, 0.001, 0.035) == pytest.approx(2.0, abs=1e-6)
+
+
+def test_design_checks_mark_a_flow_whose_stage_sits_at_a_jump():
+    from reachgauge.hydraulics import capacity
+
+    x = np.array([0, 2, 4, 6, 8, 10, 15, 45, 50], float)
+    z = np.array([3, 1, 0, 0, 1, 2, .5, .5, 3], float)
+    p = K.profiles(x, z[None, :])
+    checks = capacity.check_flows(p, {"q": 15.0, "small": 1.0}, 0.001, 0.035, None,
+                                  np.array([2.0]), np.array([11.0]))
+    by = checks.set_index("flow")
+    assert bool(by.loc["q", "stage_at_jump"]) and not bool(by.loc["small", "stage_at_jump"])

@@ -51,6 +51,8 @@ FLAGS = {
     # capacity and roughness (bankfull issue)
     "out-of-bank": "a design flow leaves the channel",
     "over-profile": "a flow overtops an end of the transect (its stage is an upper bound)",
+    "stage-at-jump": "a design flow is carried only once water tops a bank into lower ground "
+                     "behind it (its stage is that bank's elevation)",
     "n-unusual": "Manning's n outside the usual range of the published tables",
     "n-unknown-class": "a land-cover class under the transect has no n in the table",
     # appended by the GIS issue
@@ -63,7 +65,7 @@ FLAGS = {
 
 
 # results of the design-flow checks, not doubts about the section
-CAPACITY_FLAGS = frozenset({"out-of-bank", "over-profile"})
+CAPACITY_FLAGS = frozenset({"out-of-bank", "over-profile", "stage-at-jump"})
 
 
 def has_quality_flag(text) -> bool:

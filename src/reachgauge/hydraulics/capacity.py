@@ -23,7 +23,7 @@ from reachgauge.kernel import sections as K
 from reachgauge.kernel.solver import normal_stage
 
 CHECK_COLUMNS = ["flow", "discharge", "stage", "depth", "freeboard", "q_ratio", "out_of_bank",
-                 "over_profile", "index"]
+                 "over_profile", "stage_at_jump", "index"]
 
 
 def check_flows(p: K.Profiles, flows: dict[str, float], slope, n, banks,
@@ -33,7 +33,9 @@ def check_flows(p: K.Profiles, flows: dict[str, float], slope, n, banks,
     ``over_profile`` (bool: the water overtops an end of the transect; its stage
     counts only the water inside the transect, an upper bound where the plain
     continues, and NaN if even three times the profile's depth cannot carry the
-    flow), ``index`` (transect)."""
+    flow), ``stage_at_jump`` (bool: the flow is carried only once water tops a bank
+    into lower ground behind it; the stage is that bank's elevation, where the
+    section's discharge jumps past the flow), ``index`` (transect)."""
     if not flows:
         return pd.DataFrame(columns=CHECK_COLUMNS)
     names = list(flows)
@@ -57,6 +59,7 @@ def check_flows(p: K.Profiles, flows: dict[str, float], slope, n, banks,
         "q_ratio": np.broadcast_to(ratio, (t, f)).T.ravel(),
         "out_of_bank": out.T.ravel(),
         "over_profile": over.T.ravel(),
+        "stage_at_jump": sol.at_jump.T.ravel(),
         "index": np.tile(np.arange(t), f),
     })
 

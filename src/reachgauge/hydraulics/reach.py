@@ -200,9 +200,9 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     stages = rating.stage_table(p, rid, rs.chainage, params.rating, slope, n, banks, ok)
     design, checks, reach_flows = _design(p, rid, rs.chainage, inputs.flows, slope, n, banks,
                                           bf, ok)
-    out_any, over_any, flows_out = _flow_results(checks, t)
+    out_any, over_any, jump_any, flows_out = _flow_results(checks, t)
     columns = [("bankfull-outlier", outlier), ("n-unknown-class", unknown), ("n-unusual", unusual),
-               ("out-of-bank", out_any), ("over-profile", over_any)]
+               ("out-of-bank", out_any), ("over-profile", over_any), ("stage-at-jump", jump_any)]
     codes = flags.concat(np.asarray(rs.transect_flags, dtype=object).reshape(t), picks.codes)
     start = _line_start(rs, t)
     tr = pd.DataFrame({
@@ -231,19 +231,21 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
 
 
 def _flow_results(checks, t: int):
-    """Per transect: any design flow out of bank, any over the transect's ends, and
-    the ';'-joined names of the flows out of bank."""
+    """Per transect: any design flow out of bank, any over the transect's ends, any
+    whose stage sits at a jump, and the ';'-joined names of the flows out of bank."""
     idx = checks["index"].to_numpy(int)
-    out = checks["out_of_bank"].to_numpy(bool)
-    over = checks["over_profile"].to_numpy(bool)
-    out_any = np.bincount(idx[out], minlength=t) > 0
-    over_any = np.bincount(idx[over], minlength=t) > 0
+
+    def any_of(column):
+        return np.bincount(idx[checks[column].to_numpy(bool)], minlength=t) > 0
+
+    out_any, over_any, jump_any = (any_of(c) for c in ("out_of_bank", "over_profile",
+                                                        "stage_at_jump"))
     names = []
     for flow, grp in checks.groupby("flow", sort=False):   # a handful of flows
         mask = np.zeros(t, bool)
         mask[grp["index"].to_numpy(int)[grp["out_of_bank"].to_numpy(bool)]] = True
         names.append((str(flow), mask))
-    return out_any, over_any, flags.join_columns(names, t)
+    return out_any, over_any, jump_any, flags.join_columns(names, t)
 
 
 def _spread(cand):

@@ -11,12 +11,13 @@ the profile *spills* and counts the water inside the profile only, with no wall)
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
 
 from reachgauge import manning
-from reachgauge.errors import InputError
+from reachgauge.errors import InputError, ReachgaugeWarning
 from reachgauge.kernel import sections as K
 from reachgauge.kernel import solver
 
@@ -255,13 +256,20 @@ class CrossSection:
         Returns the lowest stage inside the profile whose Manning discharge is
         ``q`` (policy ``"inside"`` of :mod:`reachgauge.kernel.solver`). Raises
         :class:`InputError` when ``q`` exceeds what the profile can carry below
-        its lower end.
+        its lower end. Where ``q`` is carried only once the water tops a bank into
+        lower ground behind it, the stage is that bank's elevation (the discharge
+        there is below ``q``, just above it more) and a
+        :class:`~reachgauge.errors.ReachgaugeWarning` says so.
         """
         q = float(manning.check_discharge(q))
         manning.check_slope(slope)
         manning.unit_system(units)
         sol = solver.normal_stage(self._p, np.array([q]), slope, self._n(n), self._bank_rows(),
                                   units)
+        if sol.at_jump[0]:
+            warnings.warn(f"discharge {q:.4g} is carried only once the water tops a bank at "
+                          f"{sol.stage[0]:.4g} into lower ground behind it; that elevation is "
+                          "returned", ReachgaugeWarning, stacklevel=2)
         return self._solved(sol, q, "discharge", lambda s: self.discharge(s, slope, n, units),
                             "widen the transect (half-width) or check the discharge and its units")
 

@@ -152,6 +152,8 @@ DESIGN_FIELDS = {
     "out_of_bank": ("flag", "the flow leaves the channel"),
     "over_profile": ("flag", "the flow overtops an end of the transect: its stage counts only the "
                              "water inside the transect (an upper bound); widen the transect"),
+    "stage_at_jump": ("flag", "the flow is carried only once water tops a bank into lower ground "
+                              "behind it: the stage is that bank's elevation"),
     "share_out": ("none", "reach row: fraction of transects where the flow is out of bank"),
 }
 
