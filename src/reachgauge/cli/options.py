@@ -10,7 +10,7 @@ import time
 import typing
 from pathlib import Path
 
-from reachgauge.config import RunConfig, fields_by_group, from_mapping, read_toml
+from reachgauge.config import RunConfig, build, fields_by_group, read_toml
 from reachgauge.errors import InputError
 
 GROUP_TITLES = {
@@ -75,14 +75,13 @@ def add_config_options(parser: argparse.ArgumentParser) -> None:
 
 
 def config_from_args(args) -> RunConfig:
-    """Config file first, command-line values over it."""
-    values = read_toml(args.config) if getattr(args, "config", None) else {}
-    for f in dataclasses.fields(RunConfig):
-        v = getattr(args, f.name, None)
-        if v is not None:
-            values[f.name] = v
-    return from_mapping(values, source=Path(args.config).name if getattr(args, "config", None)
-                        else "options")
+    """Config file first, command-line values over it; each read in its own
+    unit system (:func:`reachgauge.config.build`)."""
+    path = getattr(args, "config", None)
+    file_values = read_toml(path) if path else {}
+    cli = {f.name: getattr(args, f.name) for f in dataclasses.fields(RunConfig)
+           if getattr(args, f.name, None) is not None}
+    return build(file_values, Path(path).name if path else None, cli)
 
 
 class Progress:
@@ -98,6 +97,10 @@ class Progress:
         self.transects = 0
 
     def __call__(self, out, done, total):
+        if done == 1:
+            from reachgauge.batch.lifecycle import checkpoint
+
+            checkpoint("computing")
         if self.quiet:
             return
         self.transects += int(out.reach_row.get("transects", 0) or 0)
@@ -125,7 +128,7 @@ def raise_if_missing(cfg):
     if cfg.dem is None or cfg.streams is None:
         raise InputError("the terrain raster and the streams are both needed",
                          "give --dem RASTER and --streams VECTOR (or set them in --config)")
-    for name in ("dem", "streams"):
-        p = getattr(cfg, name)
-        if not Path(p).exists() and "://" not in str(p) and not str(p).startswith("/vsi"):
-            raise InputError(f"{name} file {str(p)!r} does not exist", f"check the --{name} path")
+    from reachgauge.inputs.raster import check_exists
+
+    check_exists(cfg.dem, "terrain raster", "--dem")
+    check_exists(cfg.streams, "streams file", "--streams")

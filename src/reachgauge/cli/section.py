@@ -71,12 +71,17 @@ def run(args) -> int:
 
     from reachgauge.hydraulics import reach as hydraulics, roughness
     from reachgauge import manning
-    from reachgauge.results.geopackage import write_csv_atomic
+    from reachgauge.results.geopackage import check_target, write_csv_atomic
+    from reachgauge.plausibility import section_doubts
+    from reachgauge.settings import MAX_RATING_STAGES
     from reachgauge.inputs.profile_csv import read_profile
     from reachgauge.kernel.crosssection import CrossSection
 
     u = manning.unit_system(args.units)
-    cs, kind = read_profile(args.profile, args.stage if args.stage is not None else None)
+    if args.rating is not None:   # a target that cannot be written fails before the work
+        check_target(args.rating, args.overwrite)
+    cs, kind = read_profile(args.profile, args.stage if args.stage is not None else None,
+                            units=args.units)
     if kind == "depth":
         stage = 0.0 if args.stage is None else args.stage
         if args.depth is not None:
@@ -123,13 +128,21 @@ def run(args) -> int:
         nn = n_used if np.ndim(n_used) == 0 else "/".join(f"{v:g}" for v in n_used)
         lines.append(f"Manning's n        {nn}")
     fig = hydraulics.figures(cs, stage, args.slope, n_used, args.units).iloc[0]
+    doubts = section_doubts(args.slope, n_used, fig.velocity, fig.froude, args.units,
+                            back_calculated=args.discharge is not None)
+    for text in dict.fromkeys(t for _names, t in doubts):
+        print(f"warning: {text}", file=sys.stderr)
+    doubted = {name for names, _t in doubts for name in names}
+    lines = [ln + ("   [implausible: see the warning]" if ln.startswith("Manning's n")
+                   and "Manning's n" in doubted else "") for ln in lines]
     rows = [("area", fig.flow_area, u.area), ("wetted perimeter", fig.perimeter, u.length),
             ("top width", fig.top_width, u.length), ("hydraulic radius", fig.hyd_radius, u.length),
             ("hydraulic depth", fig.hyd_depth, u.length), ("velocity", fig.velocity, u.velocity),
             ("discharge", fig.discharge, u.discharge), ("Froude number", fig.froude, ""),
             ("shear stress", fig.shear, u.stress), ("stream power", fig.stream_power, u.power)]
     for name, val, unit in rows:
-        lines.append(f"{name:<19}{val:.4g} {unit}".rstrip())
+        lines.append(f"{name:<19}{val:.4g} {unit}".rstrip()
+                     + ("   [implausible: see the warning]" if name in doubted else ""))
     if args.banks:
         sub = cs.subsections(stage)
         n3 = np.broadcast_to(np.asarray(n_used, dtype=float), (3,))
@@ -159,6 +172,10 @@ def run(args) -> int:
         if not (step > 0 and max_depth > 0):
             raise InputError("--rating-step and --rating-max-depth must be greater than 0",
                              "give positive depths")
+        if max_depth / step > MAX_RATING_STAGES:
+            raise InputError(f"--rating-step {step:g} up to depth {max_depth:g} {u.length} makes "
+                             f"{max_depth / step:.0f} rows, more than {MAX_RATING_STAGES}",
+                             f"give --rating-step {max_depth / MAX_RATING_STAGES:.3g} or more")
         depths = np.arange(0.0, max_depth + step * 1e-9, step)
         table = hydraulics.figures(cs, cs.thalweg + depths, args.slope, n_used, args.units)
         write_csv_atomic(table, args.rating, overwrite=args.overwrite)
