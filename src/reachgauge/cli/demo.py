@@ -40,7 +40,15 @@ def run(args) -> int:
     values = read_toml(cfg_path)
     values["jobs"] = args.jobs
     cfg = from_mapping(values, source="demo config")
-    args.out.mkdir(parents=True, exist_ok=True)
+    if not args.out.is_dir():
+        if args.out.exists():
+            raise InputError(f"--out {str(args.out)!r} is a file", "give a folder for the demo")
+        try:
+            args.out.mkdir(parents=True)
+        except OSError as exc:
+            from reachgauge.results.geopackage import write_failed
+
+            raise write_failed(args.out, exc) from None
     gpkg = args.out / "demo_result.gpkg"
     html = args.out / "demo_report.html"
     summary = run_to_file(cfg, gpkg, overwrite=True, report=html,
