@@ -338,3 +338,20 @@ def test_library_warnings_reach_the_user_as_one_plain_line(tmp_path, capsys, mon
     assert main(["report", str(tmp_path / "r.gpkg"), "--out", str(tmp_path / "r.html")]) == 0
     assert capsys.readouterr()[1].splitlines() == [
         "warning: (pyogrio) a layer option was ignored"]
+
+
+def test_the_demo_config_in_a_us_run_keeps_its_metric_meaning(tmp_path):
+    """The case of issue 10: the demo's config and CSVs state 'si', so a run with
+    --units us flags the same transects out of bank as the SI run (127 of 199 on
+    the committed basin), instead of re-reading metres as feet."""
+    config = Path(__file__).resolve().parents[1] / "sample_data" / "basin" / "config.toml"
+    out = {}
+    for units in ("si", "us"):
+        out[units] = tmp_path / f"{units}.gpkg"
+        assert main(["run", "--config", str(config), "--units", units, "--out", str(out[units]),
+                     "--quiet"]) == 0
+    a, b = (pyogrio.read_dataframe(out[u], layer="transects", read_geometry=False)
+            for u in ("si", "us"))
+    assert (a.flows_out != "").sum() > 0
+    assert list(a.flows_out) == list(b.flows_out)
+    assert _info(out["us"])["units"] == "us"
