@@ -141,6 +141,13 @@ def csv_is_a_file(w, tmp, out):
     return base(w, out) + ["--csv", write(tmp, "tables", "a file")]
 
 
+PROFILE = Path(__file__).resolve().parents[1] / "sample_data" / "gauged_section.csv"
+
+
+def section(*extra):
+    return ["section", PROFILE, "--stage", "100.9", "--slope", "0.0021", "--n", "0.035", *extra]
+
+
 # (id, arguments, exit code, text that must be in the error line)
 CASES = [
     # -- the config file: every key against RunConfig's type
@@ -200,6 +207,12 @@ CASES = [
      "shorter than the transect spacing"),
     ("all-nodata-under-the-streams", swap("--dem", "holes"), 2, "nodata value"),
     ("corrupt-geotiff-tiles", swap("--dem", "corrupt"), 2, "cannot be read in rows"),
+    # -- the section command
+    ("section-rating-step-tiny", lambda w, tmp, out: section("--rating", tmp / "rating.csv",
+                                                             "--rating-step", "1e-9"), 2,
+     "more than 2000"),
+    ("section-profile-without-units-in-us", lambda w, tmp, out: section("--units", "us"), 2,
+     "gauged_section.csv does not state the unit"),
     # -- the earlier cases
     ("missing-raster", lambda w, tmp, out: base(w, out)[:2] + [tmp / "none.tif"]
      + base(w, out)[3:], 2, "does not exist; check the --dem path"),
@@ -355,3 +368,20 @@ def test_the_demo_config_in_a_us_run_keeps_its_metric_meaning(tmp_path):
     assert (a.flows_out != "").sum() > 0
     assert list(a.flows_out) == list(b.flows_out)
     assert _info(out["us"])["units"] == "us"
+
+
+@pytest.mark.parametrize("extra,warning,flagged", [
+    # slope 2 on the gauged section: V 31.8 m/s, Froude 11.8 (issue 10)
+    (["--slope", "2", "--n", "0.035"], "slope 2 lies outside 1e-05–0.1",
+     ["velocity", "discharge", "Froude number"]),
+    # 620 m³/s through a 5.5 m² section: n 0.0003, below the published 0.010
+    (["--slope", "0.0021", "--discharge", "620"], "back-calculated n 0.0003224 lies outside",
+     ["Manning's n", "velocity", "Froude number"]),
+])
+def test_implausible_section_figures_are_warned_and_flagged(capsys, extra, warning, flagged):
+    code = main([str(a) for a in ["section", PROFILE, "--stage", "100.9", *extra]])
+    out, err = capsys.readouterr()
+    assert code == 0 and warning in err
+    marked = [ln.split("  ")[0].strip() for ln in out.splitlines() if "[implausible" in ln]
+    assert set(flagged) <= set(marked)
+    assert "area" not in marked   # geometry does not depend on slope or n

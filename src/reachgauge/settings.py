@@ -17,10 +17,13 @@ not fit in memory — and never a real river.
 from __future__ import annotations
 
 import math
+import numbers
 import re
 import typing
 import warnings
 from pathlib import Path
+
+import numpy as np
 
 from reachgauge.errors import InputError, ReachgaugeWarning, shown
 from reachgauge.manning import FOOT
@@ -68,7 +71,8 @@ EXPECT = {"path": ("a file path in quotes", '"{k}.tif"'), "text": ("text in quot
 
 
 def _number(v) -> bool:
-    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+    # numbers.Real takes numpy's scalars too (the Python API may pass them)
+    return isinstance(v, numbers.Real) and not isinstance(v, (bool, np.bool_)) and math.isfinite(v)
 
 
 def _fits(kind, v) -> bool:
@@ -81,9 +85,9 @@ def _fits(kind, v) -> bool:
     if kind == "number":
         return _number(v)
     if kind == "whole":
-        return isinstance(v, int) and not isinstance(v, bool)
+        return isinstance(v, numbers.Integral) and not isinstance(v, (bool, np.bool_))
     if kind == "bool":
-        return isinstance(v, bool)
+        return isinstance(v, (bool, np.bool_))
     if not isinstance(v, (list, tuple)):
         return False
     return all(_number(x) if kind == "numbers" else isinstance(x, str) for x in v)
