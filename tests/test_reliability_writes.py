@@ -19,7 +19,6 @@ import shutil
 import signal
 import subprocess
 import sys
-import time
 from contextlib import contextmanager
 from pathlib import Path
 
