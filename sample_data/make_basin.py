@@ -785,8 +785,10 @@ def write_geotiff(path, array, dtype, nodata, predictor, tags):
         dst.update_tags(**tags)
 
 
-def write_csv(path, header, rows):
+def write_csv(path, header, rows, units=None):
     with open(path, "w", encoding="utf-8", newline="\n") as f:
+        if units:   # the file's unit system, read whatever the run's --units
+            f.write(f"# units: {units}\n")
         f.write(",".join(header) + "\n")
         for row in rows:
             f.write(",".join(str(v) for v in row) + "\n")
@@ -794,7 +796,9 @@ def write_csv(path, header, rows):
 
 CONFIG_TOML = """\
 # reachgauge demo run on the invented basin of make_basin.py (no real place).
-# Paths are relative to this file.
+# Paths are relative to this file; lengths are in metres (units = "si"), and stay
+# metres in a run with --units us.
+units = "si"
 
 [inputs]
 dem = "terrain.tif"
@@ -867,7 +871,7 @@ def main(out: Path = DEFAULT_OUT) -> Path:
               [(c, name, f"{n:.3f}") for c, name, n in LANDCOVER])
     write_csv(out / "design_flows.csv", ("reach_id", "flow", "discharge"),
               [(r.reach_id, name, value) for r in REACHES
-               for name, value in zip(("q2", "q10", "q100"), q[r.reach_id])])
+               for name, value in zip(("q2", "q10", "q100"), q[r.reach_id])], units="si")
     obs = []
     for rid, chainage, depth in OBSERVATIONS:
         qo = manning_q(plan.dims[rid], depth, facts[rid]["channel_slope"], N_OBSERVED)
@@ -880,7 +884,7 @@ def main(out: Path = DEFAULT_OUT) -> Path:
         stage = plain - plan.dims[rid]["bank_height"] + depth
         obs.append((rid, f"{chainage:.1f}", f"{stage:.3f}", f"{depth:.2f}", f"{qo:.3f}"))
     write_csv(out / "observations.csv", ("reach_id", "chainage", "stage", "depth", "discharge"),
-              obs)
+              obs, units="si")
     write_csv(out / "cowan.csv", ("reach_id", "base", "irregularity", "variation", "obstruction",
                                   "vegetation", "meander"),
               [(rid, *(f"{t:.3f}" for t in terms),

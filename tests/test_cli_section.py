@@ -76,7 +76,7 @@ def test_depth_profile(tmp_path, capsys):
 
 
 def test_us_units_label(tmp_path, capsys):
-    p = write(tmp_path, "offset,elevation\n0,5\n10,0\n20,0\n30,5\n")
+    p = write(tmp_path, "# units: us\noffset,elevation\n0,5\n10,0\n20,0\n30,5\n")  # a file states its units
     code, out, _ = run(["section", p, "--depth", 2, "--slope", 0.001, "--n", 0.03, "--units", "us"],
                        capsys)
     assert code == 0 and "ft³/s" in out

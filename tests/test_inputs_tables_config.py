@@ -19,8 +19,13 @@ def write(tmp_path, name, text):
 def test_design_flows_long_format_and_us_conversion(tmp_path):
     p = write(tmp_path, "f.csv", "reach_id,flow,discharge\nA,q2,10\nA,q100,40\nB,q2,3.5\n")
     assert tables.read_design_flows(p) == {"A": {"q2": 10.0, "q100": 40.0}, "B": {"q2": 3.5}}
-    us = tables.read_design_flows(p, units="us")
-    assert us["A"]["q2"] == pytest.approx(10 * FOOT ** 3)  # ft³/s → m³/s, 1 ft = 0.3048 m exactly
+    # a file in ft³/s says so (tables.py's '# units:' line), whatever the run's units
+    q = write(tmp_path, "q.csv", "# units: us\nreach_id,flow,discharge\nA,q2,10\n")
+    for run_units in ("si", "us"):
+        us = tables.read_design_flows(q, units=run_units)
+        assert us["A"]["q2"] == pytest.approx(10 * FOOT ** 3)  # ft³/s → m³/s, 1 ft = 0.3048 m exactly
+    with pytest.raises(InputError, match="does not state the unit"):
+        tables.read_design_flows(p, units="us")
 
 
 @pytest.mark.parametrize("text,msg", [

@@ -178,6 +178,9 @@ def test_us_units_are_si_converted(valley, tmp_path):
     assert run(base_args(valley, si)) == 0
     args = base_args(valley, us)
     args[args.index("--half-width") + 1] = 30 / FOOT   # the same 30 m, given in feet
+    flows_si = tmp_path / "flows_si.csv"   # a CSV states its units in a US run (tables.py)
+    flows_si.write_text("# units: si\n" + Path(valley[2]).read_text())
+    args[args.index("--design-flows") + 1] = flows_si
     assert run(args + ["--units", "us"]) == 0
     a = pyogrio.read_dataframe(si, layer="transects")
     b = pyogrio.read_dataframe(us, layer="transects")

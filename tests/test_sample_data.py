@@ -79,7 +79,7 @@ def streams():
 def read_csv(name):
     import pandas as pd
 
-    return pd.read_csv(BASIN / name)
+    return pd.read_csv(BASIN / name, comment="#")   # a '# units:' line may head the file
 
 
 def sample(dem, x, y, order=1):

@@ -10,28 +10,29 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from reachgauge.config import RunConfig, from_mapping, read_toml
+from reachgauge.config import RunConfig, build, read_toml
 from reachgauge.errors import InputError
 
 
-def settings(config=None, **values) -> RunConfig:
+def configure(config=None, **values) -> RunConfig:
     """A :class:`RunConfig` from an optional TOML file and keyword settings (keyword
-    values win; None means "not given"). Lengths are converted from feet when the
-    run's units are "us"; every value is checked."""
-    merged = read_toml(config) if config else {}
-    merged.update({k: v for k, v in values.items() if v is not None})
-    return from_mapping(merged, source=Path(config).name if config else "settings")
+    values win; None means "not given"). The file's lengths are read in the unit
+    system it states (its ``units`` key), the keywords' in the run's units (``units``,
+    else the file's, else SI); every value is checked (:func:`reachgauge.config.build`)."""
+    file_values = read_toml(config) if config else {}
+    given = {k: v for k, v in values.items() if v is not None}
+    return build(file_values, Path(config).name if config else None, given)
 
 
 def require_inputs(cfg: RunConfig) -> None:
     """The terrain raster and the streams must both be given and exist."""
+    from reachgauge.inputs.raster import check_exists
+
     if cfg.dem is None or cfg.streams is None:
         raise InputError("the terrain raster and the streams are both needed",
                          "give --dem RASTER and --streams VECTOR (or set them in --config)")
-    for name in ("dem", "streams"):
-        p = getattr(cfg, name)
-        if not Path(p).exists() and "://" not in str(p) and not str(p).startswith("/vsi"):
-            raise InputError(f"{name} file {str(p)!r} does not exist", f"check the --{name} path")
+    check_exists(cfg.dem, "terrain raster", "--dem")
+    check_exists(cfg.streams, "streams file", "--streams")
 
 
 def run(out, *, config=None, overwrite: bool = False, csv=None, report=None,
@@ -48,7 +49,7 @@ def run(out, *, config=None, overwrite: bool = False, csv=None, report=None,
     """
     from reachgauge.batch.pipeline import run_to_file
 
-    cfg = settings(config, **values)
+    cfg = configure(config, **values)
     require_inputs(cfg)
     return run_to_file(cfg, out, overwrite=overwrite, csv_dir=csv, report=report,
                        colour_by=colour_by, progress=progress)

@@ -8,6 +8,11 @@ in), its help text, and whether it is a length (converted with the units).
 The defaults suit a 1 m lidar raster and small to mid-size streams (bankfull
 widths of about 2–30 m): transects every 20 m, 40 m either side of the
 centreline, the thalweg sought within 8 m of the digitised line.
+
+Every value is checked before any work (:mod:`reachgauge.settings`): its type
+against the field's (a TOML file can hold text where a number belongs), and its
+allowed range (``range`` in the metadata, SI; open below unless ``closed``).
+The ranges are wide: they catch typos and unit slips, not unusual rivers.
 """
 
 from __future__ import annotations
@@ -17,9 +22,7 @@ import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 
-import warnings
-
-from reachgauge.errors import InputError, ReachgaugeWarning
+from reachgauge.errors import InputError
 from reachgauge.manning import FOOT
 
 
@@ -44,54 +47,59 @@ class RunConfig:
     work_crs: str | None = _f(None, "inputs",
                               "projected CRS to work in when the raster is geographic "
                               "(default: its UTM zone)")
-    vertical_units: str = _f("m", "inputs", "unit of the raster's elevations: m or ft",
-                             choices=("m", "ft"))
-    units: str = _f("si", "inputs", "unit system of options and results: si (m, m³/s) or us (ft, ft³/s)",
+    vertical_units: str | None = _f(None, "inputs",
+                                    "unit of the raster's elevations (default: the raster's band "
+                                    "unit, else m)", choices=("m", "ft"))
+    units: str = _f("si", "inputs", "unit system of options and results: si (m, m³/s) or us "
+                    "(ft, ft³/s); in a config file, also the unit of its own lengths",
                     choices=("si", "us"))
     # ----------------------------------------------------------------- network
     orientation: str = _f("terrain", "network",
                           "terrain: orient each line downstream from the raster; digitised: trust "
                           "the lines' drawn direction", choices=("terrain", "digitised"))
     split_length: float | None = _f(None, "network", "split lines into reaches of about this length",
-                                    length=True)
+                                    length=True, range=(0, 1e6))
     # ---------------------------------------------------------------- transects
     spacing: float = _f(20.0, "transects", "distance between transects along the centreline",
-                        length=True)
+                        length=True, range=(0, 10_000))
     half_width: float = _f(40.0, "transects", "transect length either side of the centreline",
-                           length=True)
+                           length=True, range=(0, 10_000))
     half_width_field: str | None = _f(None, "transects", "field giving a half-width per reach")
     smoothing: float = _f(30.0, "transects",
                           "centreline length over which the transect direction is smoothed",
-                          length=True)
+                          length=True, range=(0, 100_000))
     sample_step: float | None = _f(None, "transects",
                                    "sampling step along a transect (default: the pixel size)",
-                                   length=True)
+                                   length=True, range=(0, 1000))
     snap_distance: float = _f(8.0, "transects",
                               "search this far either side of the centreline for the thalweg",
-                              length=True)
+                              length=True, range=(0, 10_000))
     # ------------------------------------------------------------------- slope
     slope_source: str = _f("bed", "slope",
                            "bed: thalweg profile; water: water surface of hydro-flattened terrain",
                            choices=("bed", "water"))
     slope_window: float = _f(200.0, "slope", "length of the window for the slope at each station",
-                             length=True)
-    min_slope: float = _f(1e-4, "slope", "floor for slope on flat reaches (flagged), dimensionless")
+                             length=True, range=(0, 1e6))
+    min_slope: float = _f(1e-4, "slope", "floor for slope on flat reaches (flagged), dimensionless",
+                          range=(0, 0.1))
     carve: bool = _f(True, "slope", "carve humps (embankments) out of the thalweg profile")
     # ---------------------------------------------------------------- bankfull
     bankfull_method: str = _f("bank-top", "bankfull", "how to pick the bankfull stage",
                               choices=BANKFULL_METHODS)
     bankfull_depth: float | None = _f(None, "bankfull", "depth above thalweg for fixed-depth",
-                                      length=True)
+                                      length=True, range=(0, 100))
     regional_coef: float | None = _f(None, "bankfull",
-                                     "regional curve: depth = coef × area^exp (m, km²)")
-    regional_exp: float | None = _f(None, "bankfull", "regional curve exponent")
+                                     "regional curve: depth = coef × area^exp (m, km²)",
+                                     range=(0, 100))
+    regional_exp: float | None = _f(None, "bankfull", "regional curve exponent", range=(0, 2))
     drainage_area_field: str | None = _f(None, "bankfull", "field holding drainage area in km²")
     baseflow_depth: float = _f(0.0, "bankfull",
                                "depth of water under the terrain's water surface to add back",
-                               length=True)
+                               length=True, range=(0, 100), closed=True)
     # -------------------------------------------------------------- roughness
-    n: float = _f(0.035, "roughness", "Manning's n of the channel")
-    n_overbank: float | None = _f(None, "roughness", "Manning's n of the overbanks (default: n)")
+    n: float = _f(0.035, "roughness", "Manning's n of the channel", range=(0, 1))
+    n_overbank: float | None = _f(None, "roughness", "Manning's n of the overbanks (default: n)",
+                                 range=(0, 1))
     n_field: str | None = _f(None, "roughness", "field giving the channel n per reach")
     landcover: Path | None = _f(None, "roughness", "land-cover raster of integer classes")
     landcover_table: Path | None = _f(None, "roughness", "CSV of class, n for the land-cover raster")
@@ -104,18 +112,21 @@ class RunConfig:
                                    "depth, discharge) to back-calculate n")
     calibrate: bool = _f(False, "roughness", "apply the back-calculated n to the observed reaches")
     # ------------------------------------------------------------------ stages
-    depths: tuple[float, ...] = _f((), "stages", "depths above the thalweg to report", length=True)
+    depths: tuple[float, ...] = _f((), "stages", "depths above the thalweg to report", length=True,
+                                   range=(0, 100))
     elevations: tuple[float, ...] = _f((), "stages", "water-surface elevations to report",
-                                       length=True)
+                                       length=True, range=(-500, 9000), closed=True)
     rating_max_depth: float | None = _f(None, "stages",
                                         "rating curves up to this depth (default: 2 × bankfull)",
-                                        length=True)
-    rating_step: float = _f(0.1, "stages", "depth step of the rating curves", length=True)
+                                        length=True, range=(0, 100))
+    rating_step: float = _f(0.1, "stages", "depth step of the rating curves", length=True,
+                            range=(0.01, 100), closed=True)
     design_flows: Path | None = _f(None, "stages",
                                    "CSV of reach_id, flow, discharge: design flows to check")
     design_flow_fields: tuple[str, ...] = _f((), "stages", "fields of the streams holding design flows")
     # ----------------------------------------------------------------- running
-    jobs: int = _f(1, "running", "worker processes (0: one per core)")
+    jobs: int = _f(1, "running", "worker processes (0: one per core)", range=(0, 256),
+                   closed=True)
     scheduler: str | None = _f(None, "running", "address of a Dask scheduler, e.g. tcp://host:8786")
 
     # ----------------------------------------------------------------- helpers
@@ -125,6 +136,7 @@ class RunConfig:
 
 # the settings that name input files
 PATH_FIELDS = tuple(f.name for f in dataclasses.fields(RunConfig) if "Path" in str(f.type))
+FIELDS = {f.name: f for f in dataclasses.fields(RunConfig)}
 
 
 def fields_by_group():
@@ -138,50 +150,99 @@ def from_mapping(values: dict, units: str | None = None, *, source: str = "confi
     """Build a :class:`RunConfig` from a flat mapping in the run's units.
 
     Lengths are converted from feet when ``units`` (or ``values['units']``) is
-    ``"us"``. Unknown keys are an :class:`InputError` naming the known ones.
+    ``"us"``. Unknown keys, values of the wrong type and values out of range
+    are an :class:`InputError` naming the key, the value and what it takes.
     """
-    known = {f.name: f for f in dataclasses.fields(RunConfig)}
-    unknown = sorted(set(values) - set(known))
-    if unknown:
-        raise InputError(f"{source}: unknown setting(s) {', '.join(unknown)}",
-                         f"known settings are: {', '.join(known)}")
-    u = units or values.get("units", "si")
+    from reachgauge import settings
+
+    values = dict(values)
+    settings.check_keys(values, source)
+    settings.check_types(values, source)
+    u = units or values.get("units") or "si"
     if u not in ("si", "us"):
         raise InputError(f"{source}: units must be 'si' or 'us', not {u!r}", "use si or us")
+    out = to_si(values, u)
+    out.setdefault("units", u)
+    return make(out, {k: source for k in values})
+
+
+def build(file_values: dict | None, file_name: str | None, cli_values: dict) -> RunConfig:
+    """The CLI's configuration: the config file first, command-line values over it.
+
+    The file's lengths are in the unit system it states (its ``units`` key),
+    whatever ``--units`` says; the command line's are in the run's units
+    (``--units``, else the file's, else SI). A file that holds lengths but
+    states no unit system is an error when the run is not in SI.
+    """
+    from reachgauge import settings
+
+    file_values = dict(file_values or {})
+    name = file_name or "config"
+    settings.check_keys(file_values, name)
+    settings.check_types(file_values, name)
+    settings.check_types(cli_values, "options")
+    file_units = file_values.pop("units", None)
+    run_units = cli_values.get("units") or file_units or "si"
+    lengths = [k for k, v in file_values.items()
+               if FIELDS[k].metadata["length"] and v not in (None, [], ())]
+    if lengths and file_units is None and run_units != "si":
+        raise InputError(
+            f"{name} gives lengths ({', '.join(lengths[:4])}) but does not state their unit, "
+            "and this run is in US units (--units us)",
+            f'add the line units = "si" at the top of {name} if its lengths are in metres, or '
+            'units = "us" if they are in feet')
+    merged = {**to_si(file_values, file_units or "si"),
+              **to_si({k: v for k, v in cli_values.items() if k != "units"}, run_units),
+              "units": run_units}
+    origin = {**{k: name for k in file_values}, **{k: "--" for k in cli_values}}
+    return make(merged, origin)
+
+
+def to_si(values: dict, units: str) -> dict:
+    """Lengths converted from feet when ``units`` is "us"; lists as tuples; paths as Path."""
     out = {}
     for key, val in values.items():
-        f = known[key]
-        choices = f.metadata.get("choices")
-        if choices and val not in choices:
-            raise InputError(f"{source}: {key} must be one of {', '.join(choices)}, not {val!r}",
-                             f"pick one of {', '.join(choices)}")
-        if f.metadata["length"] and val is not None and u == "us":
+        if FIELDS[key].metadata["length"] and val is not None and units == "us":
             val = tuple(v * FOOT for v in val) if isinstance(val, (list, tuple)) else val * FOOT
         if isinstance(val, list):
             val = tuple(val)
         if key in PATH_FIELDS and val is not None:
             val = Path(val)
         out[key] = val
-    cfg = RunConfig(**out)
-    validate(cfg)
+    return out
+
+
+def make(values: dict, origin: dict) -> RunConfig:
+    """A checked :class:`RunConfig` from SI values; ``origin`` names where each
+    key came from (a file name, or "--" for the command line) for the messages."""
+    from reachgauge import settings
+
+    cfg = RunConfig(**values)
+    settings.validate(cfg, origin)
     return cfg
 
 
 def read_toml(path) -> dict:
     """Read a TOML config into a flat mapping; tables are groups and are flattened."""
     p = Path(path)
+    if p.is_dir():
+        raise InputError(f"--config {str(p)!r} is a folder, not a file",
+                         "give the TOML file itself, e.g. --config run.toml")
     if not p.is_file():
         raise InputError(f"config file {str(p)!r} does not exist", "check the --config path")
     try:
         data = tomllib.loads(p.read_text(encoding="utf-8"))
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
         raise InputError(f"{p.name} is not valid TOML ({exc})", "fix the line it names") from None
-    flat = {}
+    except OSError as exc:
+        raise InputError(f"cannot read {p.name} ({exc.strerror})", "check the file") from None
+    flat: dict = {}
     for key, val in data.items():
-        if isinstance(val, dict):
-            flat.update(val)
-        else:
-            flat[key] = val
+        items = val.items() if isinstance(val, dict) and key not in FIELDS else [(key, val)]
+        for k, v in items:
+            if k in flat:
+                raise InputError(f"{p.name}: {k} is set twice", f"keep one {k} = ... line")
+            flat[k] = v
     # relative paths in a config file are relative to the file
     for key in PATH_FIELDS:
         if isinstance(flat.get(key), str) and not Path(flat[key]).is_absolute():
@@ -189,46 +250,11 @@ def read_toml(path) -> dict:
     return flat
 
 
-def validate(cfg: RunConfig) -> None:
-    """Range checks that need no data."""
-    def pos(name, allow_none=False):
-        v = getattr(cfg, name)
-        if v is None and allow_none:
-            return
-        if v is None or not (v > 0):
-            raise InputError(f"{name.replace('_', '-')} must be greater than 0, got {v!r}",
-                             "give a positive length")
+def validate(cfg: RunConfig, origin: dict | None = None) -> None:
+    """Range checks that need no data (see :mod:`reachgauge.settings`)."""
+    from reachgauge import settings
 
-    for name in ("spacing", "half_width", "smoothing", "snap_distance", "slope_window",
-                 "rating_step", "min_slope", "n"):
-        pos(name)
-    for name in ("split_length", "sample_step", "rating_max_depth", "n_overbank", "bankfull_depth"):
-        pos(name, allow_none=True)
-    if cfg.snap_distance > cfg.half_width:
-        raise InputError(
-            f"snap-distance ({cfg.snap_distance:g} m) is longer than half-width ({cfg.half_width:g} m)",
-            "search for the thalweg within the transect: lower snap-distance or raise half-width")
-    if cfg.baseflow_depth < 0:
-        raise InputError("baseflow-depth must be 0 or more", "give the depth of water to add back")
-    if cfg.bankfull_method == "fixed-depth" and cfg.bankfull_depth is None:
-        raise InputError("bankfull method fixed-depth needs bankfull-depth",
-                         "give --bankfull-depth D")
-    if cfg.bankfull_method == "regional" and (cfg.regional_coef is None or cfg.regional_exp is None
-                                              or cfg.drainage_area_field is None):
-        raise InputError("bankfull method regional needs regional-coef, regional-exp and "
-                         "drainage-area-field", "give all three, or pick another method")
-    if (cfg.landcover is None) != (cfg.landcover_table is None):
-        raise InputError("landcover and landcover-table go together",
-                         "give both the land-cover raster and its class-to-n CSV")
-    from reachgauge.hydraulics.roughness import check_n_range  # published ranges of n (Chow 1959, Table 5-6)
-
-    for name in ("n", "n_overbank"):
-        v = getattr(cfg, name)
-        if v is not None:
-            for note in check_n_range(v, force=cfg.force_n, where=name.replace("_", "-")):
-                warnings.warn(note, ReachgaugeWarning, stacklevel=3)
-    if cfg.jobs < 0:
-        raise InputError("jobs must be 0 (one per core) or more", "give --jobs N")
+    settings.validate(cfg, origin)
 
 
 def markdown() -> str:

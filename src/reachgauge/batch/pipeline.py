@@ -19,7 +19,9 @@ import pandas as pd
 
 from reachgauge.transects import cutting
 from reachgauge.hydraulics import reach as hydraulics, roughness
-from reachgauge.inputs import network as network_mod, tables
+from reachgauge.batch import lifecycle, outcome
+from reachgauge.inputs import checks as input_checks, network as network_mod, raster as raster_mod
+from reachgauge.inputs import tables
 from reachgauge.config import RunConfig
 from reachgauge.errors import InputError
 from reachgauge.manning import FOOT
@@ -77,6 +79,7 @@ def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:
                 shared.flows.setdefault(str(r.reach_id), {})[fld] = v
     if cfg.observations:
         shared.observations = tables.read_observations(cfg.observations, cfg.units)
+        input_checks.check_observations(shared.observations, net, cfg)
     if cfg.cowan:
         shared.cowan = tables.read_cowan(cfg.cowan)
     if cfg.landcover_table:
@@ -133,9 +136,12 @@ def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
     if reach.status != "ok":
         return ReachOutput(rid, None, base)
     try:
-        with network_mod.open_raster(raster) as ds:
+        with raster_mod.read_failures() as unreadable, raster_mod.open_raster(raster) as ds:
             rs = cutting.cut_reach(ds, raster, reach, cutting.CuttingParams.from_config(cfg),
                                    neighbours)
+        if unreadable:   # a damaged file, not a bug: the reach says where
+            base.update(status="bad-input", message=unreadable[0], transects=len(rs.chainage))
+            return ReachOutput(rid, None, base, seconds=time.perf_counter() - t0)
         if rs.status != "ok" or len(rs.chainage) == 0:
             base.update(status=rs.status, message=rs.message, transects=len(rs.chainage))
             # cut_reach turns its own unexpected errors into status "failed": still a bug
@@ -190,7 +196,9 @@ def iterate(cfg: RunConfig, net, shared: SharedInputs):
         from concurrent.futures import ProcessPoolExecutor, as_completed as done
 
         ctx = multiprocessing.get_context("spawn")  # GDAL state must not be forked
-        with ProcessPoolExecutor(max_workers=min(jobs, len(args)), mp_context=ctx) as pool:
+        with ProcessPoolExecutor(max_workers=min(jobs, len(args)), mp_context=ctx,
+                                 initializer=lifecycle.worker_started,
+                                 initargs=(os.getpid(),)) as pool:
             futures = [pool.submit(process_reach, *a) for a in args]
             for fut in done(futures):
                 yield fut.result()
@@ -205,7 +213,7 @@ def cut_all(cfg: RunConfig):
     net = network_mod.load_network(cfg)
     params = cutting.CuttingParams.from_config(cfg)
     out = []
-    with network_mod.open_raster(net.raster) as ds:
+    with raster_mod.open_raster(net.raster) as ds:
         for reach in net.reaches:
             nb = (net.neighbours(reach, reach.half_width_m + cfg.snap_distance)
                   if reach.status == "ok" else None)
@@ -228,6 +236,7 @@ def compute(cfg: RunConfig, progress=None) -> RunResult:
     """
     t0 = time.perf_counter()
     net = network_mod.load_network(cfg)
+    outcome.check_network(net, cfg)      # every reach unusable for one cause: exit 2 now
     shared = read_shared_inputs(cfg, net)
     outputs = []
     total = len(net.reaches)
@@ -237,6 +246,7 @@ def compute(cfg: RunConfig, progress=None) -> RunResult:
             progress(out, len(outputs), total)
     order = {str(r.reach_id): i for i, r in enumerate(net.reaches)}
     outputs.sort(key=lambda o: order.get(o.reach_id, 0))
+    outcome.check_outputs(outputs, net, cfg)   # no figures anywhere, for input causes: exit 2
     return RunResult(net, outputs, time.perf_counter() - t0, list(net.warnings))
 
 
@@ -316,18 +326,11 @@ def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, r
                 colour_by: str = "discharge", progress=None) -> RunSummary:
     """The whole batch: compute every reach, write the GeoPackage (atomically),
     optionally CSV copies of the tables and the HTML report."""
-    from reachgauge.results import geopackage as outputs
+    from reachgauge.results.staging import RunOutputs
 
-    outputs.check_target(out, overwrite)          # fail before the work, not after
-    if report is not None:
-        outputs.check_target(report, overwrite)
-    run = compute(cfg, progress)
-    layers = outputs.build_layers(run, cfg)
-    outputs.write_geopackage(out, layers, run.network.source_crs, overwrite=overwrite)
-    if csv_dir is not None:
-        outputs.write_csv_dir(csv_dir, layers, overwrite=overwrite)
-    if report is not None:
-        from reachgauge.results.report import write_report
-
-        write_report(out, report, colour_by=colour_by, overwrite=overwrite)
+    # every target checked before the work; all written together after it
+    with RunOutputs(out, csv_dir=csv_dir, report=report, overwrite=overwrite,
+                    colour_by=colour_by) as targets:
+        run = compute(cfg, progress)
+        targets.write(run, cfg)
     return summarise(run, Path(out), None if report is None else Path(report))

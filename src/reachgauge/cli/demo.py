@@ -36,7 +36,15 @@ def run(args) -> int:
     if not cfg_path.is_file():
         raise InputError(f"the demo data is missing ({cfg_path})",
                          "run the demo from a source checkout of reachgauge")
-    args.out.mkdir(parents=True, exist_ok=True)
+    if not args.out.is_dir():
+        if args.out.exists():
+            raise InputError(f"--out {str(args.out)!r} is a file", "give a folder for the demo")
+        try:
+            args.out.mkdir(parents=True)
+        except OSError as exc:
+            from reachgauge.results.geopackage import write_failed
+
+            raise write_failed(args.out, exc) from None
     gpkg = args.out / "demo_result.gpkg"
     html = args.out / "demo_report.html"
     summary = api.run(gpkg, config=cfg_path, jobs=args.jobs, overwrite=True, report=html,

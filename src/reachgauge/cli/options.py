@@ -80,9 +80,9 @@ def setting_values(args) -> dict:
 
 def config_from_args(args) -> RunConfig:
     """Config file first, command-line values over it."""
-    from reachgauge.api import settings
+    from reachgauge.api import configure
 
-    return settings(getattr(args, "config", None), **setting_values(args))
+    return configure(getattr(args, "config", None), **setting_values(args))
 
 
 class Progress:
@@ -98,6 +98,10 @@ class Progress:
         self.transects = 0
 
     def __call__(self, out, done, total):
+        if done == 1:
+            from reachgauge.batch.lifecycle import checkpoint
+
+            checkpoint("computing")
         if self.quiet:
             return
         self.transects += int(out.reach_row.get("transects", 0) or 0)

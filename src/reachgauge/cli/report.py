@@ -28,9 +28,13 @@ def add(sub):
 
 
 def run(args) -> int:
+    from reachgauge.errors import InputError
     from reachgauge.results.report import write_report
 
     out = args.out or args.result.with_suffix(".html")
+    if out.suffix.lower() not in (".html", ".htm"):
+        raise InputError(f"--out {str(out)!r} does not end in .html",
+                         "give a path ending in .html: the report is one HTML page")
     write_report(args.result, out, colour_by=args.colour_by, overwrite=args.overwrite)
     print(f"report: {out}")
     return 0

@@ -23,7 +23,12 @@ examples:
 
 Every option can also be set in the TOML file given by --config (same names with
 underscores, e.g. half_width = 40.0, optionally inside tables such as [transects]);
-command-line values win. Lengths are in metres, or in feet with --units us.
+command-line values win. Lengths on the command line are in metres, or in feet with
+--units us. Files state their own units, whatever --units says: units = "si" or "us"
+in the TOML file, a first line '# units: si' or '# units: us' in a CSV file.
+
+Exit codes: 0 done; 2 bad input or an output that cannot be written (one error line,
+nothing written); 1 an internal error; 130/143/129 stopped by SIGINT/SIGTERM/SIGHUP.
 """
 
 

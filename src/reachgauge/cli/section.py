@@ -73,10 +73,13 @@ def run(args) -> int:
     from reachgauge.hydraulics import roughness, surveyed
     from reachgauge.inputs.profile_csv import read_profile
     from reachgauge.kernel.crosssection import CrossSection
-    from reachgauge.results.geopackage import write_csv_atomic
+    from reachgauge.results.geopackage import check_target, write_csv_atomic
 
     u = manning.unit_system(args.units)
-    cs, kind = read_profile(args.profile, args.stage if args.stage is not None else None)
+    if args.rating is not None:   # a target that cannot be written fails before the work
+        check_target(args.rating, args.overwrite)
+    cs, kind = read_profile(args.profile, args.stage if args.stage is not None else None,
+                            units=args.units)
     stage = _stage(args, cs, kind)
     if stage <= cs.thalweg:
         raise InputError(f"stage {stage:g} is not above the thalweg ({cs.thalweg:g} {u.length})",
@@ -112,7 +115,12 @@ def run(args) -> int:
     else:
         nn = res.n if np.ndim(res.n) == 0 else "/".join(f"{v:g}" for v in res.n)
         lines.append(f"Manning's n        {nn}")
-    lines += _figure_lines(res, u)
+    for text in dict.fromkeys(t for _names, t in res.doubts):
+        print(f"warning: {text}", file=sys.stderr)
+    doubted = {name for names, _t in res.doubts for name in names}
+    lines = [ln + (IMPLAUSIBLE if ln.startswith("Manning's n") and "Manning's n" in doubted
+                   else "") for ln in lines]
+    lines += _figure_lines(res, u, doubted)
     if args.discharge is not None:
         lines += _table_lines(res)
     if bool(res.figures.spills):
@@ -150,7 +158,10 @@ def _stage(args, cs, kind) -> float:
     raise InputError("the water level is missing", "give --stage ELEV or --depth D")
 
 
-def _figure_lines(res, u) -> list[str]:
+IMPLAUSIBLE = "   [implausible: see the warning]"
+
+
+def _figure_lines(res, u, doubted=()) -> list[str]:
     fig = res.figures
     lines = []
     rows = [("area", fig.flow_area, u.area), ("wetted perimeter", fig.perimeter, u.length),
@@ -159,7 +170,7 @@ def _figure_lines(res, u) -> list[str]:
             ("discharge", fig.discharge, u.discharge), ("Froude number", fig.froude, ""),
             ("shear stress", fig.shear, u.stress), ("stream power", fig.stream_power, u.power)]
     for name, val, unit in rows:
-        lines.append(f"{name:<19}{val:.4g} {unit}".rstrip())
+        lines.append(f"{name:<19}{val:.4g} {unit}".rstrip() + (IMPLAUSIBLE if name in doubted else ""))
     for label, area, perim, ni, qi in res.parts:
         lines.append(f"  {label:<17}area {area:.4g} {u.area}, wetted perimeter {perim:.4g} "
                      f"{u.length}, n {ni:g}, discharge {qi:.4g} {u.discharge}")

@@ -19,7 +19,9 @@ from reachgauge import manning
 from reachgauge.errors import InputError
 from reachgauge.hydraulics import roughness
 from reachgauge.hydraulics.figures import figures
+from reachgauge.hydraulics.plausibility import section_doubts
 from reachgauge.kernel.crosssection import CrossSection
+from reachgauge.settings import MAX_RATING_STAGES
 
 PART_NAMES = ("left overbank", "channel", "right overbank")
 
@@ -32,7 +34,9 @@ class SectionAnalysis:
     section); n: the n used (one value, or the (left, channel, right) triple);
     n_back: n back-calculated from ``discharge`` (NaN when n was given); parts:
     per subsection (name, area, wetted perimeter, n, discharge) when the section
-    has banks; table_rows: rows of Chow's (1959) Table 5-6 whose range holds n_back.
+    has banks; table_rows: rows of Chow's (1959) Table 5-6 whose range holds n_back;
+    doubts: (names of figures, warning) for figures outside what natural channels
+    show (:func:`reachgauge.hydraulics.plausibility.section_doubts`).
     """
 
     figures: pd.Series
@@ -40,6 +44,7 @@ class SectionAnalysis:
     n_back: float
     parts: list
     table_rows: list
+    doubts: list
 
 
 def analyse_section(cs: CrossSection, stage: float, slope: float, *, n=None, discharge=None,
@@ -74,7 +79,11 @@ def analyse_section(cs: CrossSection, stage: float, slope: float, *, n=None, dis
                           float(fl.parts.wetted_perimeter[i].item()), float(n3[i]),
                           float(fl.part_discharge[i].item())))
     rows = roughness.table_matches(n_back, kind="channel") if np.isfinite(n_back) else []
-    return SectionAnalysis(fig, n, n_back, parts, rows)
+    n_list = list(np.atleast_1d(np.asarray(n, dtype=float)))
+    doubts = section_doubts(slope, n_list if len(n_list) > 1 else n_list[0],
+                            float(fig.velocity), float(fig.froude), units,
+                            back_calculated=discharge is not None)
+    return SectionAnalysis(fig, n, n_back, parts, rows, doubts)
 
 
 def rating(cs: CrossSection, slope: float, n, *, units: str = "si", step=None,
@@ -87,8 +96,9 @@ def rating(cs: CrossSection, slope: float, n, *, units: str = "si", step=None,
     if not (step > 0 and max_depth > 0):
         raise InputError("the rating step and deepest depth must be greater than 0",
                          "give positive depths")
-    if max_depth / step > 100_000:
-        raise InputError(f"a rating table of {max_depth / step:.3g} rows is too long",
-                         "give a larger step or a smaller deepest depth (at most 100,000 rows)")
+    if max_depth / step > MAX_RATING_STAGES:
+        raise InputError(f"--rating-step {step:g} up to depth {max_depth:g} makes "
+                         f"{max_depth / step:.0f} rows, more than {MAX_RATING_STAGES}",
+                         f"give --rating-step {max_depth / MAX_RATING_STAGES:.3g} or more")
     depths = np.arange(0.0, max_depth + step * 1e-9, step)
     return figures(cs, cs.thalweg + depths, slope, n, units)

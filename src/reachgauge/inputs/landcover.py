@@ -48,7 +48,13 @@ def classes_at(path, xy, work_crs) -> np.ndarray:
             return out
         c0, c1 = col[inside].min(), col[inside].max() + 1
         r0, r1 = row[inside].min(), row[inside].max() + 1
-        band = src.read(1, window=Window(c0, r0, c1 - c0, r1 - r0), masked=True)
+        try:
+            band = src.read(1, window=Window(c0, r0, c1 - c0, r1 - r0), masked=True)
+        except rasterio.errors.RasterioError as exc:   # a damaged file: the reach says so
+            raise InputError(f"the land-cover raster {str(path)!r} cannot be read in rows "
+                             f"{r0}–{r1 - 1}, columns {c0}–{c1 - 1} ({exc})",
+                             "check the file (e.g. gdalinfo -checksum) and export it again"
+                             ) from None
         vals = np.ma.filled(band.astype(np.int64), -1)
         flat = out.reshape(-1)
         flat[inside] = vals[row[inside] - r0, col[inside] - c0]

@@ -1,18 +1,16 @@
 """Load and check the inputs: the terrain raster and the stream centrelines.
 
-This is the input edge: it opens the raster (any format rasterio reads: GeoTIFF,
-cloud-optimised GeoTIFF paths, VRT mosaics) and the streams (any vector format
-geopandas/pyogrio reads), checks them, and returns a :class:`Network` of plain,
-picklable descriptions. It keeps nothing open; a worker reopens the raster from
-:class:`RasterInfo` alone with :func:`open_raster`.
+This is the input edge: the raster half (any format rasterio reads: GeoTIFF,
+cloud-optimised GeoTIFF paths, VRT mosaics; its CRS and elevation unit) lives in
+:mod:`reachgauge.inputs.raster`; this module reads the streams (any vector
+format geopandas/pyogrio reads), checks them, and returns a :class:`Network` of
+plain, picklable descriptions. It keeps nothing open; a worker reopens the
+raster from :class:`RasterInfo` alone with :func:`open_raster`.
 
-CRS. The streams are reprojected to the raster's CRS. A raster in a geographic
-CRS (degrees) is worked in a projected CRS — ``cfg.work_crs`` or its UTM zone —
-through a warped view (rasterio WarpedVRT, bilinear), with a warning: metres are
-never computed from degrees. A raster or vector without a CRS is an error unless
-``cfg.dem_crs`` / ``cfg.streams_crs`` states it. Horizontal lengths are metres
-(``xy_factor`` converts a CRS in feet); elevations are metres (``z_factor``
-converts a raster in feet, ``cfg.vertical_units = "ft"``).
+CRS. The streams are reprojected to the raster's working CRS. A vector without
+a CRS is an error unless ``cfg.streams_crs`` states it. Horizontal lengths are
+metres (``xy_factor``); elevations are metres (``z_factor``, from the raster's
+band unit or ``cfg.vertical_units``).
 
 Reaches. A LineString is one reach; a MultiLineString's parts are merged where
 they join, and the rest become separate reaches (``part`` 0, 1, …, ids
@@ -37,65 +35,28 @@ last) stretch of ``min(L/4, 10 pixels)``, so one pit or one spike cannot decide.
 
 from __future__ import annotations
 
-import hashlib
 import math
-import os
-import time
 import warnings
 from collections import Counter
-from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import geopandas
 import numpy as np
 import pyogrio
-import rasterio
 import shapely
-from affine import Affine
-from pyproj import CRS, Transformer
-from pyproj.aoi import AreaOfInterest
-from pyproj.database import query_utm_crs_info
-from pyproj.exceptions import CRSError
-from rasterio.enums import Resampling
-from rasterio.vrt import WarpedVRT
+from pyproj import CRS
 from shapely.ops import substring
 
+from reachgauge.errors import InputError, ReachgaugeWarning, shown
 from reachgauge.inputs import sampler
-from reachgauge.errors import InputError, ReachgaugeWarning
+from reachgauge.inputs.raster import (  # noqa: F401 - the raster half, re-exported
+    RasterInfo, TerrainReadError, check_exists, describe_file, describe_raster, fingerprint,
+    open_raster, parse_crs)
 from reachgauge.manning import FOOT
 
 # Ends of a line closer in height than this (m) leave its direction to the drawing.
 ORIENT_TOLERANCE = 0.1
-
-
-@dataclass(frozen=True)
-class RasterInfo:
-    """What a worker needs to reopen and read the raster (picklable).
-
-    ``crs``: the raster's own CRS; ``work_crs``: the projected CRS everything
-    is computed in; ``warped``: read through a WarpedVRT into ``work_crs`` on
-    the grid ``transform`` / ``width`` / ``height``; ``res``: pixel size in
-    metres; ``bounds`` (left, bottom, right, top) in ``work_crs``; ``nodata``:
-    the file's nodata value; ``z_factor``: metres per vertical unit;
-    ``xy_factor``: metres per ``work_crs`` unit; ``fingerprint``: size, mtime
-    and SHA-256 of the first MB of the file.
-    """
-
-    path: str
-    crs: CRS
-    work_crs: CRS
-    warped: bool
-    res: float
-    bounds: tuple
-    nodata: float | None
-    z_factor: float
-    xy_factor: float
-    fingerprint: str
-    transform: Affine
-    width: int
-    height: int
-    crs_stated: bool = False
 
 
 @dataclass
@@ -136,6 +97,7 @@ class Network:
     source_crs: CRS
     work_crs: CRS
     warnings: list[str] = field(default_factory=list)
+    streams_bounds: tuple = ()   # (left, bottom, right, top) of every feature, work CRS
     _tree: object = field(default=None, init=False, repr=False, compare=False)
 
     def _usable(self):
@@ -160,140 +122,9 @@ class Network:
         return shapely.multilinestrings(near) if near else None
 
 
-@contextmanager
-def open_raster(info: RasterInfo):
-    """Open the raster for reading in ``info.work_crs``: the dataset itself, or
-    a WarpedVRT (bilinear, nodata NaN, float64) on the grid recorded in ``info``."""
-    with rasterio.open(info.path) as src:
-        if not info.warped:
-            yield src
-            return
-        with WarpedVRT(src, src_crs=_rio(info.crs), crs=_rio(info.work_crs),
-                       transform=info.transform, width=info.width, height=info.height,
-                       resampling=Resampling.bilinear, nodata=np.nan, dtype="float64") as vrt:
-            yield vrt
-
-
-def _rio(crs: CRS):
-    return rasterio.crs.CRS.from_wkt(crs.to_wkt())
-
-
-def _parse_crs(text, what):
-    try:
-        return CRS.from_user_input(text)
-    except CRSError:
-        raise InputError(f"{what} {text!r} is not a CRS that pyproj knows",
-                         "give an EPSG code such as EPSG:32633, or a WKT string") from None
-
-
-def _check_exists(path, what, option):
-    if path is None:
-        raise InputError(f"no {what} given", f"give {option}")
-    text = str(path)
-    if "://" not in text and not text.startswith("/vsi") and not Path(text).exists():
-        raise InputError(f"{what} {text!r} does not exist", f"check the {option} path")
-    return text
-
-
-def describe_file(path) -> dict:
-    """Size, modification time and SHA-256 of the first MiB of a local file, so a
-    result can be traced to its inputs without hashing a huge raster whole; just
-    the path for a remote one."""
-    try:
-        st = os.stat(path)
-        with open(path, "rb") as fh:
-            digest = hashlib.sha256(fh.read(1 << 20)).hexdigest()
-    except OSError:
-        return {"path": str(path)}
-    return {"path": str(Path(path).resolve()), "bytes": st.st_size,
-            "modified": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime(st.st_mtime)),
-            "sha256_first_mib": digest}
-
-
-def fingerprint(path) -> str:
-    """:func:`describe_file` as one line: size, mtime and SHA-256 of the first MB."""
-    d = describe_file(path)
-    if "sha256_first_mib" not in d:
-        return f"remote:{path}"
-    mtime = int(os.stat(path).st_mtime)
-    return f"size={d['bytes']};mtime={mtime};sha256-first-MB={d['sha256_first_mib']}"
-
-
-def _unit_factor(crs: CRS) -> float:
-    return float(crs.axis_info[0].unit_conversion_factor)
-
-
-def describe_raster(cfg, notes: list) -> RasterInfo:
-    """Open the raster once, check its CRS and choose the working CRS."""
-    path = _check_exists(cfg.dem, "terrain raster", "--dem")
-    try:
-        src = rasterio.open(path)
-    except rasterio.errors.RasterioIOError as exc:
-        raise InputError(f"cannot read the terrain raster {path!r} ({exc})",
-                         "give a raster that GDAL reads (GeoTIFF, VRT, ...)") from None
-    with src:
-        if src.count > 1:
-            notes.append(f"the terrain raster has {src.count} bands; band 1 is used")
-        crs = CRS.from_wkt(src.crs.to_wkt()) if src.crs else None
-        if cfg.dem_crs:
-            stated = _parse_crs(cfg.dem_crs, "dem-crs")
-            if crs is not None and crs != stated:
-                notes.append(f"the terrain raster says its CRS is {crs.name}; dem-crs "
-                             f"{cfg.dem_crs} is used instead, as stated")
-            crs = stated
-        elif crs is None:
-            raise InputError(f"the terrain raster {Path(path).name} has no CRS",
-                             "state it with dem-crs (e.g. EPSG:32633)")
-        transform, width, height = src.transform, src.width, src.height
-        work, warped = crs, False
-        if crs.is_geographic:
-            work = (_parse_crs(cfg.work_crs, "work-crs") if cfg.work_crs
-                    else _utm_zone(crs, src.bounds))
-            if work.is_geographic:
-                raise InputError(f"work-crs {cfg.work_crs} is geographic (degrees)",
-                                 "name a projected CRS in metres or feet, e.g. a UTM zone")
-            with WarpedVRT(src, src_crs=_rio(crs), crs=_rio(work), resampling=Resampling.bilinear,
-                           nodata=np.nan, dtype="float64") as vrt:
-                transform, width, height = vrt.transform, vrt.width, vrt.height
-            warped = True
-            notes.append(f"the terrain raster is in a geographic CRS ({crs.name}); it is read "
-                         f"through a bilinear warp into {work.name} so that lengths are in "
-                         f"metres")
-        elif cfg.work_crs and _parse_crs(cfg.work_crs, "work-crs") != crs:
-            notes.append("work-crs applies only to a geographic raster; the raster's own "
-                         "projected CRS is used")
-        nodata = src.nodata
-    if not crs.is_geographic and not _linear(crs):
-        raise InputError(f"the raster's CRS {crs.name} has no linear unit",
-                         "reproject the raster to a projected CRS")
-    f = _unit_factor(work)
-    res = min(math.hypot(transform.a, transform.d), math.hypot(transform.b, transform.e)) * f
-    bounds = rasterio.transform.array_bounds(height, width, transform)
-    return RasterInfo(path=path, crs=crs, work_crs=work, warped=warped, res=res,
-                      bounds=(bounds[0], bounds[1], bounds[2], bounds[3]), nodata=nodata,
-                      z_factor=FOOT if cfg.vertical_units == "ft" else 1.0, xy_factor=f,
-                      fingerprint=fingerprint(path), transform=transform, width=width,
-                      height=height, crs_stated=bool(cfg.dem_crs))
-
-
-def _linear(crs):
-    return crs.axis_info and crs.axis_info[0].unit_name not in ("degree", "radian", "grad")
-
-
-def _utm_zone(crs, bounds):
-    cx, cy = (bounds.left + bounds.right) / 2, (bounds.bottom + bounds.top) / 2
-    lon, lat = Transformer.from_crs(crs, "EPSG:4326", always_xy=True).transform(cx, cy)
-    found = query_utm_crs_info(datum_name="WGS 84",
-                               area_of_interest=AreaOfInterest(lon, lat, lon, lat))
-    if not found:
-        raise InputError(f"no UTM zone covers the raster's centre ({lon:.4f}, {lat:.4f})",
-                         "name a projected CRS with work-crs")
-    return CRS.from_epsg(int(found[0].code))
-
-
 def read_streams(cfg, work_crs: CRS, notes: list):
     """Read the streams layer into a GeoDataFrame in ``work_crs``."""
-    path = _check_exists(cfg.streams, "streams file", "--streams")
+    path = check_exists(cfg.streams, "streams file", "--streams")
     try:
         layers = [str(n) for n in pyogrio.list_layers(path)[:, 0]]
     except Exception as exc:  # pyogrio raises several types for unreadable files
@@ -309,14 +140,14 @@ def read_streams(cfg, work_crs: CRS, notes: list):
         raise InputError(f"layer {layer!r} of the streams file holds no features",
                          "give a layer of stream centrelines")
     if cfg.streams_crs:
-        stated = _parse_crs(cfg.streams_crs, "streams-crs")
+        stated = parse_crs(cfg.streams_crs, "--streams-crs")
         if gdf.crs is not None and CRS(gdf.crs) != stated:
-            notes.append(f"the streams file says its CRS is {gdf.crs.name}; streams-crs "
+            notes.append(f"the streams file says its CRS is {gdf.crs.name}; --streams-crs "
                          f"{cfg.streams_crs} is used instead, as stated")
         gdf = gdf.set_crs(stated, allow_override=True)
     elif gdf.crs is None:
         raise InputError(f"the streams file {Path(path).name} has no CRS",
-                         "state it with streams-crs (e.g. EPSG:4326)")
+                         "state it with --streams-crs (e.g. EPSG:4326)")
     if CRS(gdf.crs) != work_crs:
         gdf = gdf.to_crs(work_crs)
     return gdf
@@ -351,13 +182,13 @@ def _id_text(v):
 def _ids(gdf, cfg):
     if cfg.id_field is None:
         return [str(i + 1) for i in range(len(gdf))]
-    _check_field(gdf, cfg.id_field, "id-field")
+    _check_field(gdf, cfg.id_field, "--id-field")
     ids = [_id_text(v) for v in gdf[cfg.id_field]]
     missing = [i for i, v in enumerate(ids) if v is None]
     if missing:
         raise InputError(f"{len(missing)} feature(s) have no {cfg.id_field} "
                          f"(first at row {missing[0]})",
-                         "fill the ids, or leave id-field out to have them assigned")
+                         "fill the ids, or leave --id-field out to have them assigned")
     dup = [v for v, k in Counter(ids).items() if k > 1]
     if dup:
         raise InputError(f"reach ids in {cfg.id_field} are not unique: {', '.join(dup[:5])}"
@@ -412,8 +243,8 @@ def _half_width(attrs, cfg):
     except (TypeError, ValueError):
         hw = math.nan
     if not hw > 0:
-        return cfg.half_width, (f"{cfg.half_width_field} is {v!r}, not a positive length; "
-                                f"half-width {cfg.half_width:g} m used")
+        return cfg.half_width, (f"{cfg.half_width_field} is {shown(v)}, not a positive length; "
+                                f"--half-width {cfg.half_width:g} m used")
     return hw, ""
 
 
@@ -435,9 +266,9 @@ def load_network(cfg) -> "Network":
     info = describe_raster(cfg, notes)
     gdf = read_streams(cfg, info.work_crs, notes)
     if cfg.name_field is not None:
-        _check_field(gdf, cfg.name_field, "name-field")
+        _check_field(gdf, cfg.name_field, "--name-field")
     if cfg.half_width_field is not None:
-        _check_field(gdf, cfg.half_width_field, "half-width-field")
+        _check_field(gdf, cfg.half_width_field, "--half-width-field")
     ids = _ids(gdf, cfg)
     records = gdf.drop(columns=gdf.geometry.name).to_dict("records")
     f = info.xy_factor
@@ -461,7 +292,11 @@ def load_network(cfg) -> "Network":
                     pieces.append((line, 0.0, "outside-raster", "",
                                    "the line lies outside the raster"))
                     continue
-                line, orient = _orient(ds, line, info, cfg)
+                try:
+                    line, orient = _orient(ds, line, info, cfg)
+                except TerrainReadError as exc:   # a damaged file: this reach says where
+                    pieces.append((line, 0.0, "bad-input", "", str(exc)))
+                    continue
                 pieces += [(p, c0, "ok", orient, hw_note)
                            for p, c0 in _pieces(line, cfg.split_length, f)]
             for k, (line, c0, st, orient, msg) in enumerate(pieces):
@@ -485,4 +320,4 @@ def load_network(cfg) -> "Network":
     for note in notes:
         warnings.warn(note, ReachgaugeWarning, stacklevel=2)
     return Network(raster=info, reaches=reaches, source_crs=info.crs, work_crs=info.work_crs,
-                   warnings=notes)
+                   warnings=notes, streams_bounds=tuple(gdf.total_bounds))

@@ -3,7 +3,9 @@
 The file has a header row and two columns: an offset (``offset``, ``station``
 or ``distance``) and either an elevation (``elevation``, ``elev`` or ``z``) or
 a depth below a measured water surface (``depth``). Offsets run from the left
-bank to the right bank looking downstream.
+bank to the right bank looking downstream. A ``# units: si|us`` line above the
+header states the unit of its lengths (:mod:`reachgauge.inputs.tables`); the
+section is returned in the units of the command.
 """
 
 from __future__ import annotations
@@ -13,8 +15,10 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from reachgauge.errors import InputError
+from reachgauge.errors import InputError, shown
+from reachgauge.inputs.tables import file_units
 from reachgauge.kernel.crosssection import CrossSection
+from reachgauge.manning import FOOT
 
 OFFSET_NAMES = ("offset", "station", "distance")
 ELEVATION_NAMES = ("elevation", "elev", "z")
@@ -28,14 +32,19 @@ def _pick(columns, names):
     return None
 
 
-def read_profile(path, water_surface: float | None = None) -> tuple[CrossSection, str]:
+def read_profile(path, water_surface: float | None = None,
+                 units: str = "si") -> tuple[CrossSection, str]:
     """Return the section in ``path`` and the kind of its second column
-    (``"elevation"`` or ``"depth"``). Depths are turned into elevations below
-    ``water_surface`` (0 if not given)."""
+    (``"elevation"`` or ``"depth"``), in ``units`` (the command's: m or ft)
+    whatever the unit the file states. Depths are turned into elevations below
+    ``water_surface`` (in ``units``; 0 if not given)."""
     p = Path(path)
     if not p.is_file():
-        raise InputError(f"profile file {str(p)!r} does not exist",
+        raise InputError(f"profile file {str(p)!r} "
+                         + ("is a folder" if p.is_dir() else "does not exist"),
                          "give the path of a CSV with offset and elevation (or depth) columns")
+    own = file_units(p, units, "offsets and elevations")
+    k = 1.0 if own == units else (FOOT if own == "us" else 1 / FOOT)   # file unit → command unit
     try:
         df = pd.read_csv(p, comment="#")
     except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
@@ -60,9 +69,10 @@ def read_profile(path, water_surface: float | None = None) -> tuple[CrossSection
     bad = np.nonzero(~np.isfinite(x) | ~np.isfinite(v))[0]
     if bad.size:
         raise InputError(
-            f"{p.name} line {int(bad[0]) + 2}: {df[xcol].iloc[bad[0]]!r}, {df[col].iloc[bad[0]]!r} "
-            "is not a pair of numbers",
+            f"{p.name} line {int(bad[0]) + 2}: {shown(df[xcol].iloc[bad[0]])}, "
+            f"{shown(df[col].iloc[bad[0]])} is not a pair of numbers",
             "fix or remove that row")
+    x, v = x * k, v * k
     if kind == "depth":
         v = (0.0 if water_surface is None else float(water_surface)) - v
     try:

@@ -7,50 +7,115 @@ failed run leaves nothing behind.
 
 from __future__ import annotations
 
+import errno
 import os
-import tempfile
+import shutil
 import time
 from pathlib import Path
 
 import pandas as pd
 
-from reachgauge.errors import InputError
+from reachgauge.batch import lifecycle
+from reachgauge.errors import InputError, OutputError
 from reachgauge.manning import FOOT as FOOT_
 
 
 def check_target(path, overwrite: bool) -> Path:
-    """Refuse to replace an existing file unless ``overwrite``."""
+    """Refuse to replace an existing file unless ``overwrite``; refuse a target
+    whose folder is missing or cannot be written, before any work is done."""
     p = Path(path)
+    if p.is_dir():
+        raise InputError(f"{str(p)!r} is a folder", "give a file path inside it")
     if p.exists() and not overwrite:
         raise InputError(f"{str(p)!r} already exists", "choose another path or pass --overwrite")
-    if p.exists() and p.is_dir():
-        raise InputError(f"{str(p)!r} is a directory", "give a file path")
     if not p.parent.exists():
         raise InputError(f"folder {str(p.parent)!r} does not exist", "create it first")
+    check_writable(p.parent)
     return p
+
+
+def check_writable(folder) -> None:
+    """Create and remove a file in ``folder``: the surest test that results
+    can be written there (permissions, a read-only disk). Stale temporary
+    files of ended runs in the folder are removed on the way
+    (:mod:`reachgauge.batch.lifecycle`)."""
+    folder = Path(folder)
+    if not folder.is_dir():
+        raise InputError(f"{str(folder)!r} is not a folder", "give a path inside a folder")
+    try:
+        lifecycle.probe(folder)
+    except OSError as exc:
+        raise OutputError(f"cannot write in folder {str(folder)!r} ({exc.strerror})",
+                          _fix_for(exc)) from None
+    lifecycle.clean_stale(folder)
+
+
+WRITE_ERRNOS = {errno.ENOSPC, errno.EDQUOT, errno.EFBIG, errno.EACCES, errno.EPERM, errno.EROFS,
+                errno.EIO, errno.ENOENT, errno.ENOTDIR, errno.EISDIR}
+
+
+def _fix_for(exc) -> str:
+    if getattr(exc, "errno", None) in (errno.ENOSPC, errno.EDQUOT, errno.EFBIG):
+        return "free some disk space or choose another folder, then run again"
+    if getattr(exc, "errno", None) in (errno.EACCES, errno.EPERM, errno.EROFS):
+        return "choose a folder you can write to"
+    return "check the disk and the folder, then run again"
+
+
+def write_failed(target, exc) -> OutputError:
+    """The one-line error for a write that failed; the partial file is gone."""
+    reason = getattr(exc, "strerror", None) or " ".join(str(exc).split()) or type(exc).__name__
+    try:
+        free = shutil.disk_usage(Path(target).parent).free
+        space = f"; {free / 2**20:.0f} MB free there" if free < 2**30 else ""
+    except OSError:
+        space = ""
+    return OutputError(f"cannot write {str(target)!r} ({reason}{space}); nothing was written "
+                       "and any earlier file there is unchanged", _fix_for(exc))
+
+
+def is_write_error(exc) -> bool:
+    """A failure of the disk or the file system, not a bug: OSError with a
+    write errno, or a GDAL write error from pyogrio."""
+    if isinstance(exc, OSError):
+        return exc.errno in WRITE_ERRNOS
+    mod = type(exc).__module__ or ""
+    return mod.startswith("pyogrio")
 
 
 class atomic_path:
     """Context manager yielding a temporary path beside ``target``; on success
-    it is renamed onto the target, on failure removed."""
+    it is renamed onto the target, on failure removed. A failed write becomes
+    an :class:`OutputError`."""
 
     def __init__(self, target, overwrite: bool = False):
         self.target = check_target(target, overwrite)
 
     def __enter__(self) -> Path:
-        # keep the target's extension last: GDAL checks it (".part.gpkg")
-        fd, name = tempfile.mkstemp(prefix=f".{self.target.stem}.",
-                                    suffix=".part" + self.target.suffix, dir=self.target.parent)
-        os.close(fd)
-        os.unlink(name)  # writers such as GDAL want to create the file themselves
-        self.tmp = Path(name)
+        # the target's extension stays last: GDAL picks the driver from it
+        lifecycle.hold(self.target.parent)
+        self.tmp = lifecycle.temp_path(self.target)
         return self.tmp
 
     def __exit__(self, exc_type, exc, tb):
+        try:
+            return self._finish(exc_type, exc)
+        finally:
+            lifecycle.release(self.target.parent)
+
+    def _finish(self, exc_type, exc):
         if exc_type is None:
-            os.replace(self.tmp, self.target)
-        else:
-            self.tmp.unlink(missing_ok=True)
+            try:
+                with lifecycle.deferred():
+                    os.replace(self.tmp, self.target)
+                    lifecycle.STATE.written.append(self.target)
+            except OSError as err:
+                lifecycle.remove_temp(self.tmp)
+                raise write_failed(self.target, err) from None
+            return False
+        lifecycle.remove_temp(self.tmp)
+        if is_write_error(exc):
+            raise write_failed(self.target, exc) from None
         return False
 
 
@@ -69,17 +134,24 @@ def write_geopackage(path, layers: dict, crs, *, overwrite: bool = False) -> Pat
     become attribute tables. The file is built beside the target and renamed
     into place only when every layer is written.
     """
+    with atomic_path(path, overwrite) as tmp:
+        write_layers(tmp, layers, crs)
+    return Path(path)
+
+
+def write_layers(path, layers: dict, crs) -> None:
+    """Write ``layers`` into the GeoPackage at ``path`` as it stands (no renaming)."""
     import geopandas as gpd
     import pyogrio
 
-    with atomic_path(path, overwrite) as tmp:
-        for name, frame in layers.items():
-            if isinstance(frame, gpd.GeoDataFrame):
-                frame = frame.set_crs(crs, allow_override=True) if frame.crs is None else frame
-            # the Arrow path writes a batch at a time (about 2.5x faster than row by row)
-            pyogrio.write_dataframe(_plain_types(frame), tmp, layer=name, driver="GPKG",
-                                    use_arrow=True)
-    return Path(path)
+    for i, (name, frame) in enumerate(layers.items()):
+        if isinstance(frame, gpd.GeoDataFrame):
+            frame = frame.set_crs(crs, allow_override=True) if frame.crs is None else frame
+        # the Arrow path writes a batch at a time (about 2.5x faster than row by row)
+        pyogrio.write_dataframe(_plain_types(frame), path, layer=name, driver="GPKG",
+                                use_arrow=True)
+        if i == 0:
+            lifecycle.checkpoint("writing")
 
 
 def _plain_types(frame):
@@ -99,11 +171,17 @@ def write_csv_dir(folder, tables: dict, *, overwrite: bool = False) -> list[Path
     folder.mkdir(parents=True, exist_ok=True)
     paths = []
     for name, frame in tables.items():
-        df = pd.DataFrame(frame)
-        if "geometry" in df.columns:
-            df["geometry"] = [g.wkt if g is not None else "" for g in df["geometry"]]
-        paths.append(write_csv_atomic(df, folder / f"{name}.csv", overwrite=overwrite))
+        paths.append(write_csv_atomic(csv_frame(frame), folder / f"{name}.csv",
+                                      overwrite=overwrite))
     return paths
+
+
+def csv_frame(frame) -> pd.DataFrame:
+    """A layer as a plain table for CSV: geometry as WKT text."""
+    df = pd.DataFrame(frame)
+    if "geometry" in df.columns:
+        df["geometry"] = [g.wkt if g is not None else "" for g in df["geometry"]]
+    return df
 
 
 # --------------------------------------------------------- assembling layers
@@ -211,13 +289,15 @@ def run_info(run, cfg) -> pd.DataFrame:
     from reachgauge import __version__
     from reachgauge.results import schema
     from reachgauge.config import PATH_FIELDS
-    from reachgauge.inputs.network import describe_file
+    from reachgauge.inputs.raster import describe_file
     from reachgauge.notices import CAUTION_LINE
 
     rows = [("reachgauge_version", __version__), ("created_utc", time.strftime("%Y-%m-%dT%H:%M:%SZ",
                                                                            time.gmtime())),
             ("units", cfg.units),
             ("unit_labels", json.dumps(schema.UNIT_LABELS[cfg.units], ensure_ascii=False)),
+            ("vertical_units", getattr(run.network.raster, "z_unit", "m")),
+            ("vertical_units_source", getattr(run.network.raster, "z_source", "")),
             ("crs", run.network.source_crs.to_string()),
             ("work_crs", run.network.work_crs.to_string()),
             ("elapsed_s", f"{run.elapsed:.2f}"), ("caution", CAUTION_LINE)]
