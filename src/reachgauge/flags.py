@@ -27,6 +27,7 @@ TRANSECT_STATUS = {
     "ok": "processed",
     "no-data": "too few valid terrain samples on the transect",
     "no-depth": "the profile has no ground above the thalweg on one side",
+    "no-slope": "too few stations of the reach have ground to fit a slope here",
     "failed": "an unexpected error; see the run log",
 }
 

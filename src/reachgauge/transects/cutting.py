@@ -226,9 +226,11 @@ def _cut(ds, raster, reach, cfg, neighbours):
                   ("water-surface", np.full(t, water))]
     tflags = F.join_columns(flag_cols, t)
 
+    # one station with ground fits no slope: such a transect has no discharge
+    status = np.where((status == "ok") & ~np.isfinite(fit.station), "no-slope", status)
     ok = status == "ok"
     rstatus, rmsg = ("ok", reach.message) if ok.any() else (
-        "no-sections", "no transect of the reach has enough terrain data")
+        "no-sections", "no transect of the reach has enough terrain data and a slope")
     profile = pd.DataFrame({"station": np.arange(t), "chainage": st.chainage, "z_raw": z_raw,
                             "z_carved": z_carved, "z_used": z_used, "carved": carved,
                             "slope": fit.station})

@@ -84,9 +84,18 @@ def place_stations(line, spacing, smoothing) -> Stations:
     # to the local direction.
     tiny = norm <= 1e-9 * max(length, 1.0)
     if tiny.any():
-        local = chord(min(1e-3 * length, 0.5))
+        h = min(1e-3 * length, 0.5)
+        local = chord(h)
         vec = np.where(tiny[:, None], local, vec)
         norm = np.hypot(vec[:, 0], vec[:, 1])
+        # at the tip of a line that doubles back even the local chord closes: take
+        # the direction the line arrives from (or leaves by, at its start)
+        tip = norm <= 1e-9 * max(length, 1.0)
+        if tip.any():
+            one_sided = np.where((chainage > 0)[:, None], at(chainage) - at(chainage - h),
+                                 at(chainage + h) - at(chainage))
+            vec = np.where(tip[:, None], one_sided, vec)
+            norm = np.hypot(vec[:, 0], vec[:, 1])
     tangent = vec / norm[:, None]
     left = np.column_stack([-tangent[:, 1], tangent[:, 0]])
     return Stations(chainage=chainage, xy=xy, tangent=tangent, left=left)
