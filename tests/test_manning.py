@@ -5,11 +5,15 @@ import math
 import numpy as np
 import pytest
 
-fluids_open_flow = pytest.importorskip("fluids.open_flow")
+from reachgauge import CrossSection, manning
+from reachgauge.errors import InputError
+from reachgauge.manning import FOOT
 
-from reachgauge import CrossSection, manning  # noqa: E402
-from reachgauge.errors import InputError  # noqa: E402
-from reachgauge.manning import FOOT  # noqa: E402
+
+@pytest.fixture(scope="module")
+def fluids_open_flow():
+    """The reference library, for the tests that use it only (the rest run without it)."""
+    return pytest.importorskip("fluids.open_flow")
 
 
 def rectangle(b, wall=10.0):
@@ -21,7 +25,7 @@ def trapezoid(b, z, wall):
     return CrossSection([0, t, t + b, 2 * t + b], [wall, 0, 0, wall])
 
 
-def test_velocity_matches_fluids_over_a_grid():
+def test_velocity_matches_fluids_over_a_grid(fluids_open_flow):
     # Reference: fluids.open_flow.V_Manning(Rh, S, n) = Rh^(2/3) S^(1/2) / n (SI),
     # Bell, C., fluids (PyPI), citing Chow (1959).
     for r in (0.05, 0.3, 1.0, 2.5, 8.0):
@@ -37,7 +41,7 @@ def test_cengel_cimbala_example_via_fluids_docstring():
     assert manning.velocity(0.2859, 0.005236, 0.03) == pytest.approx(1.0467781958118971, rel=1e-12)
 
 
-def test_chezy_relation_matches_fluids():
+def test_chezy_relation_matches_fluids(fluids_open_flow):
     # C = R^(1/6) / n (fluids.open_flow.n_Manning_to_C_Chezy); then V = C sqrt(R S)
     r, s, n = 1.7, 0.004, 0.035
     c = fluids_open_flow.n_Manning_to_C_Chezy(n, r)
@@ -130,7 +134,7 @@ def test_discharge_beyond_profile_is_a_clear_error():
         cs.stage_for_discharge(1e6, 0.001, 0.03)
 
 
-def test_vectorised_over_arrays():
+def test_vectorised_over_arrays(fluids_open_flow):
     r = np.array([0.5, 1.0, 2.0])
     np.testing.assert_allclose(manning.velocity(r, 0.001, 0.03),
                                [fluids_open_flow.V_Manning(v, 0.001, 0.03) for v in r])

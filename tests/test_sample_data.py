@@ -20,10 +20,15 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-rasterio = pytest.importorskip("rasterio")
-gpd = pytest.importorskip("geopandas")
-shapely = pytest.importorskip("shapely")
-fluids_open_flow = pytest.importorskip("fluids.open_flow")
+import geopandas as gpd  # noqa: E402  (core dependencies of the package)
+import rasterio  # noqa: E402
+import shapely  # noqa: E402
+
+
+@pytest.fixture(scope="module")
+def fluids_open_flow():
+    """The reference library, only for the tests that use it."""
+    return pytest.importorskip("fluids.open_flow")
 
 from hypothesis import given, settings  # noqa: E402
 from hypothesis import strategies as st  # noqa: E402
@@ -439,7 +444,7 @@ CHOW_ROW = {
 }
 
 
-def test_landcover_n_are_chow_normal_values():
+def test_landcover_n_are_chow_normal_values(fluids_open_flow):
     table = read_csv("landcover_n.csv")
     assert list(table.columns) == ["class", "name", "n"]
     assert sorted(table["class"]) == sorted(CHOW_ROW)
@@ -473,8 +478,9 @@ def test_cowan_terms_inside_published_ranges(truth):
 
 def manning_q(r, y, slope, n):
     """Q = A V with V from fluids.open_flow.V_Manning (SI); section in closed form."""
+    fluids = pytest.importorskip("fluids.open_flow")
     area, perimeter, _ = channel_section(r, y)
-    return area * fluids_open_flow.V_Manning(Rh=area / perimeter, S=slope, n=n)
+    return area * fluids.V_Manning(Rh=area / perimeter, S=slope, n=n)
 
 
 def test_observations_are_manning_on_the_true_section(truth):
