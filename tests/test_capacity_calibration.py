@@ -122,3 +122,36 @@ def test_reach_channel_n_priority():
     assert roughness.reach_channel_n("B", {"n": None}, default=0.035, n_field="n") == (0.035, "default")
     with pytest.raises(InputError, match="not a field"):
         roughness.reach_channel_n("B", {"m": 1}, default=0.035, n_field="n")
+
+
+def test_overbank_n_has_its_own_default_not_the_channel_and_not_cowans_meander():
+    # Arcement & Schneider (1989): the meander multiplier m applies to the channel n
+    # only; a flood plain's n is its own. With Cowan terms for the channel (m = 1.30)
+    # and no overbank n given, the overbanks take the flood-plain default.
+    cowan = {"R1": dict(base=0.028, irregularity=0.005, variation=0.0, obstruction=0.01,
+                        vegetation=0.005, meander=1.30)}
+    n, src, _ = roughness.transect_n("R1", {}, 3, roughness.RoughnessParams(n=0.035),
+                                     cowan_terms=cowan)
+    assert n[0, 1] == pytest.approx((0.028 + 0.005 + 0.01 + 0.005) * 1.30)
+    assert n[0, 0] == n[0, 2] == roughness.FLOODPLAIN_N
+    # the default is the median of Chow's flood-plain "normal" values (Table 5-6)
+    normals = sorted(v[1] for k, _t, v in roughness.CHOW_NATURAL if k.startswith("plain-"))
+    assert roughness.FLOODPLAIN_N == pytest.approx(normals[len(normals) // 2])
+    given = roughness.transect_n("R1", {}, 3, roughness.RoughnessParams(n=0.035, n_overbank=0.08))
+    assert given[0][0, 0] == 0.08
+
+
+def test_regional_curve_in_us_units_is_converted(tmp_path):
+    # depth = a·DA^b in ft and mi² with --units us; a_si = a_us·0.3048/2.59^b
+    # (1 mi = 1609.344 m exactly): the same depth whichever units the curve is in
+    from reachgauge.config import RunConfig
+    from reachgauge.hydraulics.bankfull import regional_depth
+    from reachgauge.hydraulics.reach import ReachParams
+
+    cfg = RunConfig(bankfull_method="regional", regional_coef=0.9502, regional_exp=0.296,
+                    drainage_area_field="da", units="us")
+    params = ReachParams.from_config(cfg)
+    da_mi2 = 10.0
+    depth_m = regional_depth(da_mi2 * params.drainage_area_km2_per_unit,
+                             params.bankfull.regional_coef, params.bankfull.regional_exp)
+    assert depth_m == pytest.approx(0.9502 * da_mi2 ** 0.296 * 0.3048, rel=1e-12)

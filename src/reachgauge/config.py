@@ -82,23 +82,28 @@ class RunConfig:
                              length=True, range=(0, 1e6))
     min_slope: float = _f(1e-4, "slope", "floor for slope on flat reaches (flagged), dimensionless",
                           range=(0, 0.1))
-    carve: bool = _f(True, "slope", "carve humps (embankments) out of the thalweg profile")
+    carve: bool = _f(True, "slope", "condition the thalweg profile: breach humps (embankments) "
+                     "and fill pits, least change")
     # ---------------------------------------------------------------- bankfull
     bankfull_method: str = _f("bank-top", "bankfull", "how to pick the bankfull stage",
                               choices=BANKFULL_METHODS)
     bankfull_depth: float | None = _f(None, "bankfull", "depth above thalweg for fixed-depth",
                                       length=True, range=(0, 100))
     regional_coef: float | None = _f(None, "bankfull",
-                                     "regional curve: depth = coef × area^exp (m, km²)",
+                                     "regional curve: depth = coef × area^exp (m and km²; ft "
+                                     "and mi² with --units us)",
                                      range=(0, 100))
     regional_exp: float | None = _f(None, "bankfull", "regional curve exponent", range=(0, 2))
-    drainage_area_field: str | None = _f(None, "bankfull", "field holding drainage area in km²")
+    drainage_area_field: str | None = _f(None, "bankfull", "field holding drainage area in km² "
+                                         "(mi² with --units us)")
     baseflow_depth: float = _f(0.0, "bankfull",
-                               "depth of water under the terrain's water surface to add back",
+                               "depth of water under a flat water surface in the terrain to add "
+                               "back (flat sections only)",
                                length=True, range=(0, 100), closed=True)
     # -------------------------------------------------------------- roughness
     n: float = _f(0.035, "roughness", "Manning's n of the channel", range=(0, 1))
-    n_overbank: float | None = _f(None, "roughness", "Manning's n of the overbanks (default: n)",
+    n_overbank: float | None = _f(None, "roughness", "Manning's n of the overbanks (default: "
+                                 "0.05, or land cover where given; never the channel's)",
                                  range=(0, 1))
     n_field: str | None = _f(None, "roughness", "field giving the channel n per reach")
     landcover: Path | None = _f(None, "roughness", "land-cover raster of integer classes")

@@ -89,6 +89,11 @@ def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:
                 n, force=cfg.force_n, where=f"n of land-cover class {cls}"))
     if cfg.landcover:
         _check_raster(cfg.landcover, "land-cover raster")
+    if cfg.n_overbank is None and not cfg.landcover:
+        roughness.warn_all([f"no overbank n given: the flood plains take n = "
+                            f"{roughness.FLOODPLAIN_N:g} (the median normal value of the flood-plain "
+                            "rows of Chow 1959, Table 5-6), not the channel's; set --n-overbank or "
+                            "give --landcover for the plains you have"])
     for rid, t in (shared.cowan or {}).items():
         n = roughness.cowan_n(t["base"], t["irregularity"], t["variation"], t["obstruction"],
                               t["vegetation"], t["meander"])

@@ -35,18 +35,26 @@ class ReachParams:
     calibrate: bool = False
     drainage_area_field: str | None = None
 
+    drainage_area_km2_per_unit: float = 1.0   # the field's unit in km² (mi²: 2.59)
+
     @classmethod
     def from_config(cls, cfg) -> "ReachParams":
-        """The parameters a :class:`reachgauge.config.RunConfig` sets."""
+        """The parameters a :class:`reachgauge.config.RunConfig` sets. A regional
+        curve and a drainage-area field are in the run's units (ft and mi² with
+        ``units="us"``) and are converted here to m and km²."""
+        coef, area_unit = cfg.regional_coef, 1.0
+        if cfg.units == "us":
+            area_unit = bankfull.SQ_MILE_KM2
+            if coef is not None and cfg.regional_exp is not None:
+                coef = bankfull.regional_coef_to_si(coef, cfg.regional_exp)
         return cls(
             bankfull=bankfull.BankfullParams(cfg.bankfull_method, cfg.bankfull_depth,
-                                             cfg.regional_coef, cfg.regional_exp,
-                                             cfg.baseflow_depth),
+                                             coef, cfg.regional_exp, cfg.baseflow_depth),
             roughness=roughness.RoughnessParams(cfg.n, cfg.n_overbank, cfg.n_field),
             rating=rating.RatingParams(cfg.rating_step, cfg.rating_max_depth,
                                        tuple(cfg.depths), tuple(cfg.elevations)),
             min_slope=cfg.min_slope, calibrate=cfg.calibrate,
-            drainage_area_field=cfg.drainage_area_field)
+            drainage_area_field=cfg.drainage_area_field, drainage_area_km2_per_unit=area_unit)
 
 
 @dataclass
@@ -92,7 +100,7 @@ def _drainage_area(params: ReachParams, rid, attributes):
     if not (np.isfinite(v) and v > 0):
         raise InputError(f"reach {rid}: drainage-area field {params.drainage_area_field!r} has "
                          "no positive value", "fill the field, or pick another bankfull method")
-    return v
+    return v * params.drainage_area_km2_per_unit
 
 
 def _bankfull_figures(p, picks, slope, n, ok):

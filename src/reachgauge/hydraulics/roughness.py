@@ -287,10 +287,18 @@ def reach_channel_n(reach_id: str, attributes: dict, *, default: float, n_field=
 
 
 # --------------------------------------------------------- n of every transect
+# The overbanks' n when nothing says otherwise: 0.050, the median of the "normal"
+# values of the flood-plain rows of Chow (1959) Table 5-6 (pasture 0.030 to dense
+# willows 0.150). Reusing the channel's n would make the plains as smooth as the
+# channel (and, from Cowan's method, carry the channel's meander multiplier, which
+# Arcement & Schneider 1989 apply to channels only), so overbank conveyance would
+# read high and freeboard better than it is.
+FLOODPLAIN_N = 0.050
 @dataclass(frozen=True)
 class RoughnessParams:
     """Where a reach's n comes from: ``n`` the default channel n; ``n_overbank``
-    the overbanks' (None: the channel's); ``n_field`` a streams field of channel n."""
+    the overbanks' (None: :data:`FLOODPLAIN_N`, or land cover where given);
+    ``n_field`` a streams field of channel n."""
 
     n: float = 0.035
     n_overbank: float | None = None
@@ -311,7 +319,7 @@ def transect_n(reach_id: str, attributes: dict, t: int, params: RoughnessParams,
     """
     n_ch, src0 = reach_channel_n(reach_id, attributes, default=params.n, n_field=params.n_field,
                                  cowan_terms=cowan_terms)
-    n_ob = params.n_overbank or n_ch
+    n_ob = params.n_overbank if params.n_overbank is not None else FLOODPLAIN_N
     n = np.tile([n_ob, n_ch, n_ob], (t, 1)).astype(float)
     source = np.full(t, src0, dtype=object)
     unknown = np.zeros(t, dtype=bool)
