@@ -22,7 +22,10 @@ test: $(STAMP)
 bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_section.py
 	$(BIN)/python benchmarks/bench_cutting.py
+	$(BIN)/python benchmarks/bench_bankfull.py
+	$(BIN)/python benchmarks/bench_slope.py
 	$(BIN)/python benchmarks/bench_batch.py
+	$(BIN)/python benchmarks/bench_speed.py
 
 clean:
 	rm -rf $(VENV) demo_output .pytest_cache .hypothesis
