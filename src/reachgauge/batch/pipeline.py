@@ -88,7 +88,7 @@ def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:
             roughness.warn_all(roughness.check_n_range(
                 n, force=cfg.force_n, where=f"n of land-cover class {cls}"))
     if cfg.landcover:
-        _check_raster(cfg.landcover, "land-cover raster")
+        raster_mod.check_raster(cfg.landcover, "land-cover raster")
     if cfg.n_overbank is None and not cfg.landcover:
         roughness.warn_all([f"no overbank n given: the flood plains take n = "
                             f"{roughness.FLOODPLAIN_N:g} (the median normal value of the flood-plain "
@@ -114,19 +114,6 @@ def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:
             raise InputError(f"{what} name reach id(s) {', '.join(unknown[:5])} that are not in the "
                              "streams", f"reach ids are: {', '.join(sorted(known)[:10])}")
     return shared
-
-
-def _check_raster(path, what):
-    import rasterio
-
-    try:
-        with rasterio.open(path) as ds:
-            if ds.crs is None:
-                raise InputError(f"{what} {str(path)!r} has no CRS",
-                                 "assign one to the file or reproject it")
-    except rasterio.errors.RasterioIOError as exc:
-        raise InputError(f"cannot open {what} {str(path)!r} ({exc})",
-                         "give a raster file rasterio can read") from None
 
 
 def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,

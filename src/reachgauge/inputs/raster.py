@@ -178,6 +178,20 @@ def parse_crs(text, option):
                          "give an EPSG code such as EPSG:32633, or a WKT string") from None
 
 
+def check_raster(path, what):
+    """The raster at ``path`` opens and has a CRS (a clear error otherwise)."""
+    import rasterio
+
+    try:
+        with rasterio.open(path) as ds:
+            if ds.crs is None:
+                raise InputError(f"{what} {str(path)!r} has no CRS",
+                                 "assign one to the file or reproject it")
+    except rasterio.errors.RasterioIOError as exc:
+        raise InputError(f"cannot open {what} {str(path)!r} ({exc})",
+                         "give a raster file rasterio can read") from None
+
+
 def check_exists(path, what, option):
     if path is None:
         raise InputError(f"no {what} given", f"give {option}")
