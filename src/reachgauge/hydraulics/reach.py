@@ -19,6 +19,7 @@ import pandas as pd
 from reachgauge import flags
 from reachgauge.errors import InputError
 from reachgauge.hydraulics import bankfull, calibration, capacity, rating, roughness
+from reachgauge.hydraulics.bankfull.banks import sampling_blur
 from reachgauge.hydraulics.figures import section_figures
 from reachgauge.kernel import sections as K
 from reachgauge.results import schema
@@ -174,8 +175,9 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     area_km2 = _drainage_area(params, rid, reach.attributes)
     ok = np.asarray(rs.transect_status, dtype=object) == "ok"
     z = np.where(ok[:, None], np.asarray(rs.elevations, dtype=float), np.nan)
+    # the sections are sampled from the raster: the bank tops are corrected for that blur
     picks = bankfull.pick_all(K.profiles(rs.offsets, z, _channel_thalweg(rs, z)), params.bankfull,
-                              area_km2)
+                              area_km2, blur=sampling_blur(getattr(rs, "sample_step", np.nan)))
     p = picks.profiles
     ok &= p.valid
     banks = np.column_stack([picks.left_bank, picks.right_bank])
