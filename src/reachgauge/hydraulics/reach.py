@@ -97,10 +97,15 @@ def _drainage_area(params: ReachParams, rid, attributes):
 
 
 def _bankfull_figures(p, picks, slope, n, ok):
-    """Figures at the bankfull stage of the channel between the banks (vertical
-    lines at the bank offsets; Chow 1959, §6-9): an automatic pick sits where the
-    water has begun to spread onto the plain, so the whole water surface would count
-    a strip of floodplain as channel. The overbank strips' discharges are beside."""
+    """Figures at the bankfull stage of the channel those banks bound: top width,
+    area, wetted perimeter and discharge of the water between vertical lines at the
+    bank offsets, which carry no wetted perimeter (divided-channel method, Chow 1959,
+    §6-9; Manning, Chow 1959, Eq. 5-6). An automatic pick's banks are the bank tops
+    (:mod:`reachgauge.hydraulics.bankfull.banks`), where the faces meet the stage: an
+    automatic pick sits where the water has begun to spread over the rounded bank tops,
+    and the whole water surface would count that strip of floodplain as channel. The
+    discharges of the strips beyond the banks are beside (``q_overbank_*``), and
+    ``discharge_total`` is the whole section's. m, m², m³/s."""
     st = np.where(ok, picks.stage, p.thalweg)
     banks = np.column_stack([picks.left_bank, picks.right_bank])
     fl = K.flow(p, st, slope, n, banks)

@@ -44,9 +44,10 @@ class BankfullPick:
     """The bankfull stage of one section and how sure the pick is.
 
     stage, depth (m): water-surface elevation and depth above the thalweg.
-    method: the method asked for. left_bank, right_bank: offsets (m) of the water's
-    edges at ``stage`` (for an automatic method, half a break rise below it, so that a
-    stage in the middle of the spread onto a floodplain still gives the bank tops).
+    method: the method asked for. left_bank, right_bank: offsets (m) of the banks:
+    for a user's stage the water's edges there; for an automatic method the bank
+    tops, where the least-squares lines of the bank faces reach the stage
+    (:mod:`~reachgauge.hydraulics.bankfull.banks`).
     confidence: "high" | "medium" | "low". flags: codes from
     :data:`reachgauge.flags.FLAGS`. candidates: stage (m, NaN where it found no break)
     of every automatic method. tolerance (m): the agreement tolerance used.
