@@ -24,7 +24,11 @@ half as much (Manning), and the slope is not the bank pick's.
 Part 2 (demo basin, sample_data/basin, 2 m pixels): the per-reach median top width of
 the demo run against the built bankfull width in truth.json; target within one pixel.
 
-Run: .venv/bin/python benchmarks/bench_banks.py [--part synthetic|demo|all]
+Part 3 (methods): the ways of locating the banks compared on the same cut sections
+(``reachgauge.batch.pipeline.cut_all``), at the same picked stage: the per-case median
+and 10th/90th percentiles of the width error, and the demo reaches' median error.
+
+Run: .venv/bin/python benchmarks/bench_banks.py [--part synthetic|demo|methods|all]
                                                 [--cases straight,meander] [--keep DIR]
 """
 
@@ -46,6 +50,9 @@ sys.path.insert(0, str(ROOT / "tests"))
 from terrain_fixtures import make_valley_raster, meander_line, straight_line, write_lines  # noqa: E402
 
 import reachgauge  # noqa: E402
+from reachgauge.hydraulics.bankfull import BankfullParams, banks, pick_all  # noqa: E402
+from reachgauge.hydraulics.reach import _channel_thalweg  # noqa: E402
+from reachgauge.kernel import sections as K  # noqa: E402
 
 B, H, Z = 6.0, 1.5, 2.0          # the built trapezoid (m, m, H:V)
 VALLEY_SLOPE = 0.002
@@ -87,11 +94,14 @@ def run_case(work: Path, shape: str, res: float, noise: float, seed: int = 7):
     def med(col):
         return float(np.nanmedian(tr[col].to_numpy(float)))
 
+    bed = v.bed(tr["chainage"].to_numpy(float))
     return {
         "n": len(tr),
         "width": med("top_width") / top - 1, "area": med("flow_area") / area - 1,
         "perim": med("perimeter") / perim - 1, "q": med("discharge") / q - 1,
         "depth": med("bankfull_depth") - H, "slope": med("slope") / v.channel_slope - 1,
+        "stage": float(np.nanmedian(tr["bankfull_stage"].to_numpy(float) - bed - H)),
+        "thalweg": float(np.nanmedian(tr["thalweg_z"].to_numpy(float) - bed)),
     }
 
 
@@ -99,7 +109,7 @@ def synthetic(work: Path, shapes):
     print(f"Part 1: built trapezoid b {B:g} m, h {H:g} m, z {Z:g} (top {B + 2 * Z * H:g} m); "
           f"median errors over the ok transects")
     head = (f"{'case':<22}{'n':>4}{'width %':>9}{'area %':>8}{'perim %':>9}{'Q %':>7}"
-            f"{'depth cm':>10}{'slope %':>9}  verdict")
+            f"{'depth cm':>10}{'slope %':>9}{'stage cm':>10}{'thalweg cm':>12}  verdict")
     print(head)
     misses = 0
     for shape in shapes:
@@ -113,7 +123,8 @@ def synthetic(work: Path, shapes):
                 name = f"{shape} {res:g} m {noise * 100:g} cm"
                 print(f"{name:<22}{e['n']:>4}{100 * e['width']:>9.1f}{100 * e['area']:>8.1f}"
                       f"{100 * e['perim']:>9.1f}{100 * e['q']:>7.1f}{100 * e['depth']:>10.1f}"
-                      f"{100 * e['slope']:>9.1f}  {'PASS' if ok else 'MISS'}"
+                      f"{100 * e['slope']:>9.1f}{100 * e['stage']:>10.1f}{100 * e['thalweg']:>12.1f}"
+                      f"  {'PASS' if ok else 'MISS'}"
                       f"   ({time.perf_counter() - t0:.0f} s)", flush=True)
     print(f"{misses} case(s) missed the targets (width, area, Q within "
           f"{TARGET_REL:.0%}; depth within {TARGET_DEPTH * 100:g} cm)")
@@ -143,9 +154,107 @@ def demo(work: Path):
               f"{100 * area:>8.1f}  {'PASS' if abs(err) <= pixel else 'MISS'}")
 
 
+def _edges(p, stage):
+    w = K.wet(p, np.asarray(stage, dtype=float))
+    return np.column_stack([w.left_edge[:, 0], w.right_edge[:, 0]])
+
+
+def _slope_break(p, stage, outer, step):
+    """Break of slope: the least-squares line of each bank face (no blur correction)
+    intersected with the least-squares line of the floodplain vertices from the outer
+    edge to four sample steps beyond it. A loop per transect: comparison only."""
+    fc = banks.faces(p, stage)
+    h = stage - p.thalweg
+    out = outer.copy()
+    for i in np.nonzero(np.isfinite(h) & (h > 0))[0]:
+        x, z = p.x[i, :p.size[i]], p.z[i, :p.size[i]]
+        zm = p.thalweg[i] + 0.5 * h[i]
+        for side, sign in ((0, -1.0), (1, 1.0)):
+            lo, hi = sorted((outer[i, side], outer[i, side] + sign * 4 * step))
+            plain = (x >= lo) & (x <= hi)
+            if plain.sum() < 2 or not np.isfinite(fc.middle[i, side]):
+                continue
+            b, a = np.polyfit(x[plain], z[plain], 1)
+            k = sign * fc.width[i, side] / h[i]          # dx/dz of the face
+            zz = (a + b * (fc.middle[i, side] - k * zm)) / (1 - b * k)
+            out[i, side] = fc.middle[i, side] + k * (zz - zm)
+    return out
+
+
+def bank_methods(rs):
+    """Bank offsets (t, 2) by each method on one reach's cut sections, at the stage the
+    tool picks (the default method); and the ok rows."""
+    ok = np.asarray(rs.transect_status, dtype=object) == "ok"
+    z = np.where(ok[:, None], np.asarray(rs.elevations, dtype=float), np.nan)
+    p = K.profiles(rs.offsets, z, _channel_thalweg(rs, z))
+    blur = banks.sampling_blur(rs.sample_step)
+    pk = pick_all(p, BankfullParams(), blur=blur)
+    stage, rise = pk.stage, pk.break_rise
+    outer = _edges(p, np.maximum(p.thalweg, stage - 0.5 * rise))
+    return {
+        "edges below": outer,
+        "just below": _edges(p, np.maximum(p.thalweg, stage - 2 * rise)),
+        "slope break": _slope_break(p, stage, outer, rs.sample_step),
+        "face fit": banks.bank_tops(p, stage, outer),
+        "face fit+blur": banks.bank_tops(p, stage, outer, blur),
+    }, ok & np.isfinite(stage)
+
+
+METHOD_NOTES = """Methods (all at the stage the default method picks, so only the banks differ):
+  edges below    the water's edges half a break rise below the stage (before this change)
+  just below     the water's edges two break rises below the stage (width just below the break)
+  slope break    least-squares line of each face (30-70 % of the depth) met with a
+                 least-squares line of the floodplain samples beyond the edge
+  face fit       least-squares line of each face extrapolated to the stage
+  face fit+blur  the same, the face width corrected for the sampling blur (the default)"""
+
+
+def methods(work: Path, shapes):
+    from reachgauge.api import settings
+    from reachgauge.batch.pipeline import cut_all
+
+    names = None
+    print("\nPart 3: bank location methods on the same cut sections; median width error % "
+          "[10th, 90th percentile] per case; demo: reach median error m")
+    for shape in shapes:
+        for res in PIXELS:
+            for noise in NOISES:
+                d = work / f"m_{shape}_{res:g}_{noise:g}"
+                d.mkdir(parents=True, exist_ok=True)
+                line = lines()[shape]
+                v = make_valley_raster(d, line, res=res, bottom_width=B, bank_height=H,
+                                       side_slope=Z, valley_slope=VALLEY_SLOPE, noise=noise,
+                                       seed=7, margin=45.0)
+                streams = write_lines(d / "streams.gpkg", [line], fields={"rid": ["A"]})
+                _, cut = cut_all(settings(dem=str(v.path), streams=str(streams), id_field="rid",
+                                          spacing=10.0, half_width=30.0))
+                got, ok = bank_methods(cut[0])
+                if names is None:
+                    names = list(got)
+                    print(f"{'case':<22}" + "".join(f"{m:>22}" for m in names))
+                top = B + 2 * Z * H
+                row = f"{shape} {res:g} m {noise * 100:g} cm"
+                cells = []
+                for m in names:
+                    e = 100 * ((got[m][:, 1] - got[m][:, 0])[ok] / top - 1)
+                    lo, mid, hi = np.nanpercentile(e, [10, 50, 90])
+                    cells.append(f"{mid:7.1f} [{lo:5.1f},{hi:5.1f}]")
+                print(f"{row:<22}" + "".join(f"{c:>22}" for c in cells), flush=True)
+    basin = ROOT / "sample_data" / "basin"
+    truth = json.loads((basin / "truth.json").read_text())["reaches"]
+    _, cut = cut_all(settings(config=str(basin / "config.toml")))
+    for rs in cut:
+        rid = str(rs.reach.reach_id)
+        got, ok = bank_methods(rs)
+        cells = [f"{np.nanmedian((got[m][:, 1] - got[m][:, 0])[ok]) - truth[rid]['bankfull_width']:22.2f}"
+                 for m in names]
+        print(f"{'demo ' + rid:<22}" + "".join(cells))
+    print(METHOD_NOTES)
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--part", choices=("synthetic", "demo", "all"), default="all")
+    ap.add_argument("--part", choices=("synthetic", "demo", "methods", "all"), default="all")
     ap.add_argument("--cases", default="straight,meander")
     ap.add_argument("--keep", type=Path, help="keep the terrains and results in this folder")
     args = ap.parse_args(argv)
@@ -155,6 +264,8 @@ def main(argv=None):
             synthetic(work, args.cases.split(","))
         if args.part in ("demo", "all"):
             demo(work)
+        if args.part in ("methods", "all"):
+            methods(work, args.cases.split(","))
 
 
 if __name__ == "__main__":
