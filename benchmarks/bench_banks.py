@@ -47,7 +47,8 @@ import pyogrio
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "tests"))
 
-from terrain_fixtures import make_valley_raster, meander_line, straight_line, write_lines  # noqa: E402
+from terrain_fixtures import (  # noqa: E402
+    make_valley_raster, meander_line, straight_line, write_lines)
 
 import reachgauge  # noqa: E402
 from reachgauge.hydraulics.bankfull import BankfullParams, banks, pick_all  # noqa: E402
@@ -123,7 +124,8 @@ def synthetic(work: Path, shapes):
                 name = f"{shape} {res:g} m {noise * 100:g} cm"
                 print(f"{name:<22}{e['n']:>4}{100 * e['width']:>9.1f}{100 * e['area']:>8.1f}"
                       f"{100 * e['perim']:>9.1f}{100 * e['q']:>7.1f}{100 * e['depth']:>10.1f}"
-                      f"{100 * e['slope']:>9.1f}{100 * e['stage']:>10.1f}{100 * e['thalweg']:>12.1f}"
+                      f"{100 * e['slope']:>9.1f}{100 * e['stage']:>10.1f}"
+                      f"{100 * e['thalweg']:>12.1f}"
                       f"  {'PASS' if ok else 'MISS'}"
                       f"   ({time.perf_counter() - t0:.0f} s)", flush=True)
     print(f"{misses} case(s) missed the targets (width, area, Q within "
@@ -246,8 +248,8 @@ def methods(work: Path, shapes):
     for rs in cut:
         rid = str(rs.reach.reach_id)
         got, ok = bank_methods(rs)
-        cells = [f"{np.nanmedian((got[m][:, 1] - got[m][:, 0])[ok]) - truth[rid]['bankfull_width']:22.2f}"
-                 for m in names]
+        built = truth[rid]["bankfull_width"]
+        cells = [f"{np.nanmedian((got[m][:, 1] - got[m][:, 0])[ok]) - built:22.2f}" for m in names]
         print(f"{'demo ' + rid:<22}" + "".join(cells))
     print(METHOD_NOTES)
 

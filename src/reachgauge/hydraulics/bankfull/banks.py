@@ -13,35 +13,38 @@ toe and top), the water's edges come from the section kernel; on each side a
 straight line x(f) is fitted to them by least squares. Its value at f = ½ is the
 middle of the face, and its slope dx/df is the face's apparent horizontal width W
 (a straight face from the thalweg to the stage spans exactly dx/df). The bank top is
-the middle of the face plus half its width, outward. A bank top found this way is
-a bank-face-and-floodplain intersection in the sense of a break of slope; fitting
-straight lines to the segments of a surveyed section and intersecting them is common
-practice in reading bank tops from a section (Harrelson, C. C., Rawlins, C. L. &
-Potyondy, J. P., 1994, *Stream channel reference sites*, USDA Forest Service
-GTR RM-245 [memory], for reading the bank top at the break of slope).
+the middle of the face plus half its width, outward: where the face line meets the
+stage. Reading the bank top at the break of slope between the bank face and the
+floodplain is common practice in surveying channel sections (e.g. Harrelson, C. C.,
+Rawlins, C. L. & Potyondy, J. P., 1994, *Stream channel reference sites*, USDA Forest
+Service GTR RM-245 [memory]); the fit and the blur correction below are ours, chosen
+over the water's edges below the stage, the width just below the break and a
+two-line break of slope by benchmarks/bench_banks.py (part 3).
 
 Sampling blur. A section cut from a raster is not the ground: each sample is a
 bilinear interpolation between pixel centres, and the section is the straight line
-between samples. Each linear interpolation, at a position a fraction u of the way
-between two values a step Δ apart, weighs the values u and 1 − u: a two-point
-kernel of variance u(1 − u)Δ², whose average over positions is Δ²/6 (a short
-integral; common practice). Together, with pixels and samples both Δ apart (the
-tool's default), the ground is seen through a kernel of variance Δ²/3. That
-variance does not move the middle of a straight face (a face is point-symmetric
-about its middle, and so is its blurred image), but it spreads the face: a face of
-width L blurred by a kernel of standard deviation σ, approximated as normal (a sum
-of two independent kernels), is the ramp
+between samples. A linear interpolation a fraction u of the way between two values
+a step Δ apart weighs them 1 − u and u: a two-point kernel of variance u(1 − u)Δ²,
+whose mean over positions is Δ²/6 (∫₀¹ u(1 − u) du = 1/6). Bilinear interpolation
+is one such kernel along each grid axis, so across a channel at any angle θ to the
+grid its variance is Δ²/6 (cos²θ + sin²θ) on average; the line between samples adds
+another, step²/6. With pixels and samples both Δ apart (the tool's default) the
+ground is seen through a kernel of variance Δ²/3. That blur does not move the
+middle of a straight face (a face is point-symmetric about its middle, and so is its
+blurred image), but it spreads the face: a face of width L blurred by a kernel of
+standard deviation σ, taken as normal (a sum of independent kernels), is the ramp
 
     z(x) = H·F(x),   F(x) = [G(x + L/2) − G(x − L/2)] / L   (lengths in units of σ)
 
 with G(u) = u Φ(u) + φ(u) the integral of the normal distribution function Φ
-(standard calculus: the convolution of a uniform slope with a normal kernel). The fit above, applied to that ramp, returns an apparent width
-W(L/σ) ≥ L, tabulated once (:func:`apparent_width`); the face width is W's inverse
-at the measured width (0 where the measured width is that of a step, W(0) ≈ 2.6σ).
-Without the correction a face one to two pixels wide reads ~0.2 pixel wide on
-each side. The correction removes only the blur the tool itself adds; a terrain
-model interpolated from points carries more of its own, which is left (widths may
-still read a little wide on such rasters).
+(standard calculus: a uniform slope convolved with a normal kernel). The fit above,
+applied to that ramp, reads an apparent width W(L/σ) ≥ L, tabulated once
+(:func:`apparent_width`); the face width is W's inverse at the measured width (0
+where the measured width is no more than a step's, W(0) ≈ 2.6σ). Without the
+correction a face 1.5 pixels wide reads about a quarter of a pixel wide on each side
+(benchmarks/bench_banks.py). The correction removes only the blur the tool itself
+adds; a terrain model interpolated from points carries some of its own, which is
+left (widths may still read a little wide on such rasters).
 
 Bounds: a bank top is never inside the water's edge at half the bankfull depth (any
 bank that rises outward is wider there) nor beyond the outer edge the caller gives
@@ -74,17 +77,22 @@ def sampling_blur(step, pixel=None) -> np.ndarray:
     s = np.asarray(step, dtype=float)
     px = s if pixel is None else np.asarray(pixel, dtype=float)
     ok = np.isfinite(s) & (s > 0)
-    with np.errstate(invalid="ignore"):
-        return np.where(ok, np.sqrt((np.where(ok, px, 0.0) ** 2 + np.where(ok, s, 0.0) ** 2) / 6.0), 0.0)
+    var = (np.where(ok, px, 0.0) ** 2 + np.where(ok, s, 0.0) ** 2) / 6.0
+    return np.where(ok, np.sqrt(var), 0.0)
 
 
 def _fractions() -> np.ndarray:
     return np.linspace(FIT_FROM, FIT_TO, FIT_STAGES)
 
 
+def _normal_cdf_integral(u):
+    """G(u) = ∫ Φ = u Φ(u) + φ(u)."""
+    return u * ndtr(u) + np.exp(-0.5 * u * u) / np.sqrt(2 * np.pi)
+
+
 def _ramp(x, q):
     """F(x) of a face of width q (units of σ) blurred by a unit normal kernel."""
-    g = lambda u: u * ndtr(u) + np.exp(-0.5 * u * u) / np.sqrt(2 * np.pi)  # noqa: E731
+    g = _normal_cdf_integral
     with np.errstate(divide="ignore", invalid="ignore"):
         f = (g(x + q / 2) - g(x - q / 2)) / q
     return np.where(q > 1e-9, f, ndtr(x))
