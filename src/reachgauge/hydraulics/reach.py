@@ -19,6 +19,7 @@ import pandas as pd
 from reachgauge import flags
 from reachgauge.errors import InputError
 from reachgauge.hydraulics import bankfull, calibration, capacity, rating, roughness
+from reachgauge.hydraulics.bankfull.banks import sampling_blur
 from reachgauge.hydraulics.figures import section_figures
 from reachgauge.kernel import sections as K
 from reachgauge.results import schema
@@ -104,10 +105,15 @@ def _drainage_area(params: ReachParams, rid, attributes):
 
 
 def _bankfull_figures(p, picks, slope, n, ok):
-    """Figures at the bankfull stage of the channel between the banks (vertical
-    lines at the bank offsets; Chow 1959, §6-9): an automatic pick sits where the
-    water has begun to spread onto the plain, so the whole water surface would count
-    a strip of floodplain as channel. The overbank strips' discharges are beside."""
+    """Figures at the bankfull stage of the channel those banks bound: top width,
+    area, wetted perimeter and discharge of the water between vertical lines at the
+    bank offsets, which carry no wetted perimeter (divided-channel method, Chow 1959,
+    §6-9; Manning, Chow 1959, Eq. 5-6). An automatic pick's banks are the bank tops
+    (:mod:`reachgauge.hydraulics.bankfull.banks`), where the faces meet the stage: an
+    automatic pick sits where the water has begun to spread over the rounded bank tops,
+    and the whole water surface would count that strip of floodplain as channel. The
+    discharges of the strips beyond the banks are beside (``q_overbank_*``), and
+    ``discharge_total`` is the whole section's. m, m², m³/s."""
     st = np.where(ok, picks.stage, p.thalweg)
     banks = np.column_stack([picks.left_bank, picks.right_bank])
     fl = K.flow(p, st, slope, n, banks)
@@ -182,8 +188,9 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     area_km2 = _drainage_area(params, rid, reach.attributes)
     ok = np.asarray(rs.transect_status, dtype=object) == "ok"
     z = np.where(ok[:, None], np.asarray(rs.elevations, dtype=float), np.nan)
+    # the sections are sampled from the raster: the bank tops are corrected for that blur
     picks = bankfull.pick_all(K.profiles(rs.offsets, z, _channel_thalweg(rs, z)), params.bankfull,
-                              area_km2)
+                              area_km2, blur=sampling_blur(getattr(rs, "sample_step", np.nan)))
     p = picks.profiles
     ok &= p.valid
     banks = np.column_stack([picks.left_bank, picks.right_bank])

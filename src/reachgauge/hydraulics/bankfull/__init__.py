@@ -49,6 +49,7 @@ thalweg.
 
 Modules: :mod:`.scales` (noise, break rise, trial stages), :mod:`.peaks` (row-wise
 local maxima and prominence), :mod:`.methods` (the four automatic methods),
+:mod:`.banks` (bank tops at the picked stage, to a fraction of a sample step),
 :mod:`.pick` (picks, fallbacks, confidence, flags), :mod:`.baseflow` (flat thalweg,
 baseflow correction), :mod:`.regional` (regional curves), :mod:`.summary` (reach
 summary), :mod:`.rows` (row-wise medians and interpolation).

@@ -14,7 +14,7 @@ import numpy as np
 
 from reachgauge.config import BANKFULL_METHODS
 from reachgauge.errors import InputError
-from reachgauge.hydraulics.bankfull import baseflow, methods
+from reachgauge.hydraulics.bankfull import banks, baseflow, methods
 from reachgauge.hydraulics.bankfull import rows as R
 from reachgauge.hydraulics.bankfull.methods import AUTOMATIC_METHODS
 from reachgauge.hydraulics.bankfull.regional import finite, regional_depth
@@ -44,9 +44,10 @@ class BankfullPick:
     """The bankfull stage of one section and how sure the pick is.
 
     stage, depth (m): water-surface elevation and depth above the thalweg.
-    method: the method asked for. left_bank, right_bank: offsets (m) of the water's
-    edges at ``stage`` (for an automatic method, half a break rise below it, so that a
-    stage in the middle of the spread onto a floodplain still gives the bank tops).
+    method: the method asked for. left_bank, right_bank: offsets (m) of the banks:
+    for a user's stage the water's edges there; for an automatic method the bank
+    tops, where the least-squares lines of the bank faces reach the stage
+    (:mod:`~reachgauge.hydraulics.bankfull.banks`).
     confidence: "high" | "medium" | "low". flags: codes from
     :data:`reachgauge.flags.FLAGS`. candidates: stage (m, NaN where it found no break)
     of every automatic method. tolerance (m): the agreement tolerance used.
@@ -164,10 +165,15 @@ def _stage(p, cand, method, user_depth):
     return stage, missed, fallback.astype(object)
 
 
-def _banks_and_flat(p, cand, stage, rise, user):
-    """Water edges at the pick (an automatic pick sits where the water spreads; its
-    banks are the edges half a break rise lower, on the banks themselves rather than
-    out on the floodplain) and the flat-thalweg test, from one kernel call."""
+def _banks_and_flat(p, cand, stage, rise, user, blur=None):
+    """Bank offsets at the pick and the flat-thalweg test, from the section kernel.
+
+    A user's stage is a water level: its banks are the water's edges there. An
+    automatic pick sits where the water spreads onto the plain; its banks are the
+    bank tops of :func:`~reachgauge.hydraulics.bankfull.banks.bank_tops` (a
+    least-squares fit of each bank face, extrapolated to the stage, corrected for
+    the sampling ``blur``), no further out than the water's edges half a break rise
+    below the stage, where the water has not yet run out over the plain."""
     at = stage if user else np.maximum(p.thalweg, stage - 0.5 * rise)
     bank_top = cand[:, 0]
     alt = np.where(np.isfinite(bank_top), bank_top, p.top)
@@ -176,14 +182,18 @@ def _banks_and_flat(p, cand, stage, rise, user):
     width = w.top_width[:, 0]
     # the width at the pick, or where there is none the width at the bank top
     channel = np.where(width > 0, width, w.top_width[:, 1])
-    return w.left_edge[:, 0], w.right_edge[:, 0], baseflow.flat_rows(p, channel)
+    edges = np.column_stack([w.left_edge[:, 0], w.right_edge[:, 0]])
+    if not user:
+        edges = banks.bank_tops(p, np.where(ok, stage, p.thalweg), edges, blur)
+    return edges[:, 0], edges[:, 1], baseflow.flat_rows(p, channel)
 
 
 def _pick(p: K.Profiles, method, user_depth=None, tolerance=None, sigma=None, floor=None,
-          added=None) -> Picks:
+          added=None, blur=None) -> Picks:
     """Picks of every profile of ``p`` (arguments already checked). ``sigma``,
     ``floor``: see :func:`~reachgauge.hydraulics.bankfull.scales.scales`; ``added``
-    (t,) bool: rows whose unseen channel was added back (flagged)."""
+    (t,) bool: rows whose unseen channel was added back (flagged); ``blur``: see
+    :func:`pick_all`."""
     ok = p.valid
     sc = scales(p, sigma, floor)
     cand = methods.candidates(p, sc)
@@ -199,7 +209,7 @@ def _pick(p: K.Profiles, method, user_depth=None, tolerance=None, sigma=None, fl
         agree = np.all(~found | (np.abs(cand - stage[:, None]) <= tol[:, None]), axis=1)
     disagree = (n_found > 0) & ~agree
     few = (2 * n_found <= len(AUTOMATIC_METHODS)) & ~missed
-    left, right, flat = _banks_and_flat(p, cand, stage, sc.rise, user)
+    left, right, flat = _banks_and_flat(p, cand, stage, sc.rise, user, blur)
     added = np.zeros(p.count, bool) if added is None else np.asarray(added, dtype=bool)
     bits = missed * 1 + spills * 2 + disagree * 4 + few * 8 + flat * 16 + added * 32
     level = np.where(missed | spills | few, 1, np.where((n_found >= 3) & agree, 3, 2))
@@ -216,18 +226,22 @@ def _pick(p: K.Profiles, method, user_depth=None, tolerance=None, sigma=None, fl
         bits=np.where(ok, bits, 0))
 
 
-def pick_all(p, params: BankfullParams, drainage_area_km2=None) -> Picks:
+def pick_all(p, params: BankfullParams, drainage_area_km2=None, blur=None) -> Picks:
     """Bankfull pick of every valid profile of ``p``
     (:class:`~reachgauge.kernel.sections.Profiles`) by ``params.method``, after the
     optional baseflow correction (of every valid profile); see
-    :func:`pick_bankfull` for methods and confidence. All transects at once: no loop
+    :func:`pick_bankfull` for methods and confidence. ``blur`` (m, scalar or (t,)):
+    the standard deviation of the blur through which the profiles see the ground
+    (:func:`~reachgauge.hydraulics.bankfull.banks.sampling_blur` of the sample step
+    for sections sampled from a raster; None for exact profiles), which the bank
+    tops are corrected for. All transects at once: no loop
     over transects or stages (the trial stages go through the kernel in row blocks of
     bounded size)."""
     check_args(params.method, params.fixed_depth, drainage_area_km2, params.regional_coef,
                params.regional_exp)
     user = _user_depth(params.method, params.fixed_depth, drainage_area_km2,
                        params.regional_coef, params.regional_exp)
-    first = _pick(p, params.method, user)
+    first = _pick(p, params.method, user, blur=blur)
     if not params.baseflow_depth > 0:
         return first
     # Only sections whose bottom is flat water are corrected (Smart, Bind & Duncan 2009:
@@ -240,7 +254,8 @@ def pick_all(p, params: BankfullParams, drainage_area_km2=None) -> Picks:
     corrected = baseflow.correct_profiles(p, depth=finite(params.baseflow_depth, "baseflow depth"),
                                           where=flat)
     floor = np.where(flat, p.thalweg + MIN_DEPTH_MULTIPLE * sc.rise, np.nan)
-    return _pick(corrected, params.method, user, sigma=sc.noise, floor=floor, added=flat)
+    return _pick(corrected, params.method, user, sigma=sc.noise, floor=floor, added=flat,
+                 blur=blur)
 
 
 def _user_depth(method, fixed_depth, drainage_area_km2, coef, exp):
