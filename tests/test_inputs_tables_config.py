@@ -4,7 +4,7 @@ with a message that names the file, line and fix."""
 import numpy as np
 import pytest
 
-from reachgauge import config
+from reachgauge import config, settings
 from reachgauge.inputs import tables
 from reachgauge.errors import InputError
 from reachgauge.manning import FOOT
@@ -61,16 +61,16 @@ def test_class_table(tmp_path):
 
 
 def test_config_from_mapping_converts_feet_and_rejects_unknown():
-    cfg = config.from_mapping({"spacing": 50.0, "half_width": 100.0, "units": "us"})
+    cfg = settings.from_mapping({"spacing": 50.0, "half_width": 100.0, "units": "us"})
     assert cfg.spacing == pytest.approx(50 * FOOT) and cfg.half_width == pytest.approx(100 * FOOT)
     with pytest.raises(InputError, match="unknown setting"):
-        config.from_mapping({"spaceing": 10})
+        settings.from_mapping({"spaceing": 10})
     with pytest.raises(InputError, match="bankfull_method must be one of"):
-        config.from_mapping({"bankfull_method": "eyeball"})
+        settings.from_mapping({"bankfull_method": "eyeball"})
     with pytest.raises(InputError, match="snap-distance"):
-        config.from_mapping({"snap_distance": 50, "half_width": 20})
+        settings.from_mapping({"snap_distance": 50, "half_width": 20})
     with pytest.raises(InputError, match="fixed-depth needs"):
-        config.from_mapping({"bankfull_method": "fixed-depth"})
+        settings.from_mapping({"bankfull_method": "fixed-depth"})
 
 
 def test_toml_tables_flatten_and_paths_are_relative_to_the_file(tmp_path):

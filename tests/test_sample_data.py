@@ -36,7 +36,8 @@ from scipy.ndimage import map_coordinates  # noqa: E402
 from scipy.special import j0  # noqa: E402
 
 from reachgauge import CrossSection  # noqa: E402
-from reachgauge.config import from_mapping, read_toml  # noqa: E402
+from reachgauge.config import read_toml  # noqa: E402
+from reachgauge.settings import from_mapping  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
 GENERATOR = ROOT / "sample_data" / "make_basin.py"

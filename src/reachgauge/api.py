@@ -10,7 +10,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from reachgauge.config import RunConfig, build, read_toml
+from reachgauge.config import RunConfig, read_toml
+from reachgauge.settings import build
 from reachgauge.errors import InputError
 
 
@@ -18,7 +19,7 @@ def configure(config=None, **values) -> RunConfig:
     """A :class:`RunConfig` from an optional TOML file and keyword settings (keyword
     values win; None means "not given"). The file's lengths are read in the unit
     system it states (its ``units`` key), the keywords' in the run's units (``units``,
-    else the file's, else SI); every value is checked (:func:`reachgauge.config.build`)."""
+    else the file's, else SI); every value is checked (:func:`reachgauge.settings.build`)."""
     file_values = read_toml(config) if config else {}
     given = {k: v for k, v in values.items() if v is not None}
     return build(file_values, Path(config).name if config else None, given)

@@ -23,7 +23,6 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from reachgauge.errors import InputError
-from reachgauge.manning import FOOT
 
 
 def _f(default, group, help, length=False, **kw):
@@ -151,82 +150,6 @@ def fields_by_group():
     return groups
 
 
-def from_mapping(values: dict, units: str | None = None, *, source: str = "config") -> RunConfig:
-    """Build a :class:`RunConfig` from a flat mapping in the run's units.
-
-    Lengths are converted from feet when ``units`` (or ``values['units']``) is
-    ``"us"``. Unknown keys, values of the wrong type and values out of range
-    are an :class:`InputError` naming the key, the value and what it takes.
-    """
-    from reachgauge import settings
-
-    values = dict(values)
-    settings.check_keys(values, source)
-    settings.check_types(values, source)
-    u = units or values.get("units") or "si"
-    if u not in ("si", "us"):
-        raise InputError(f"{source}: units must be 'si' or 'us', not {u!r}", "use si or us")
-    out = to_si(values, u)
-    out.setdefault("units", u)
-    return make(out, {k: source for k in values})
-
-
-def build(file_values: dict | None, file_name: str | None, cli_values: dict) -> RunConfig:
-    """The CLI's configuration: the config file first, command-line values over it.
-
-    The file's lengths are in the unit system it states (its ``units`` key),
-    whatever ``--units`` says; the command line's are in the run's units
-    (``--units``, else the file's, else SI). A file that holds lengths but
-    states no unit system is an error when the run is not in SI.
-    """
-    from reachgauge import settings
-
-    file_values = dict(file_values or {})
-    name = file_name or "config"
-    settings.check_keys(file_values, name)
-    settings.check_types(file_values, name)
-    settings.check_types(cli_values, "options")
-    file_units = file_values.pop("units", None)
-    run_units = cli_values.get("units") or file_units or "si"
-    lengths = [k for k, v in file_values.items()
-               if FIELDS[k].metadata["length"] and v not in (None, [], ())]
-    if lengths and file_units is None and run_units != "si":
-        raise InputError(
-            f"{name} gives lengths ({', '.join(lengths[:4])}) but does not state their unit, "
-            "and this run is in US units (--units us)",
-            f'add the line units = "si" at the top of {name} if its lengths are in metres, or '
-            'units = "us" if they are in feet')
-    merged = {**to_si(file_values, file_units or "si"),
-              **to_si({k: v for k, v in cli_values.items() if k != "units"}, run_units),
-              "units": run_units}
-    origin = {**{k: name for k in file_values}, **{k: "--" for k in cli_values}}
-    return make(merged, origin)
-
-
-def to_si(values: dict, units: str) -> dict:
-    """Lengths converted from feet when ``units`` is "us"; lists as tuples; paths as Path."""
-    out = {}
-    for key, val in values.items():
-        if FIELDS[key].metadata["length"] and val is not None and units == "us":
-            val = tuple(v * FOOT for v in val) if isinstance(val, (list, tuple)) else val * FOOT
-        if isinstance(val, list):
-            val = tuple(val)
-        if key in PATH_FIELDS and val is not None:
-            val = Path(val)
-        out[key] = val
-    return out
-
-
-def make(values: dict, origin: dict) -> RunConfig:
-    """A checked :class:`RunConfig` from SI values; ``origin`` names where each
-    key came from (a file name, or "--" for the command line) for the messages."""
-    from reachgauge import settings
-
-    cfg = RunConfig(**values)
-    settings.validate(cfg, origin)
-    return cfg
-
-
 def read_toml(path) -> dict:
     """Read a TOML config into a flat mapping; tables are groups and are flattened."""
     p = Path(path)
@@ -253,13 +176,6 @@ def read_toml(path) -> dict:
         if isinstance(flat.get(key), str) and not Path(flat[key]).is_absolute():
             flat[key] = str(p.parent / flat[key])
     return flat
-
-
-def validate(cfg: RunConfig, origin: dict | None = None) -> None:
-    """Range checks that need no data (see :mod:`reachgauge.settings`)."""
-    from reachgauge import settings
-
-    settings.validate(cfg, origin)
 
 
 def markdown() -> str:
