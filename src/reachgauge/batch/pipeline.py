@@ -294,6 +294,7 @@ def summarise(run: RunResult, out=None, report=None) -> RunSummary:
     from collections import Counter
 
     from reachgauge.flags import has_quality_flag, severity
+    from reachgauge.hydraulics.bankfull import TRUSTED_CONFIDENCE
 
     statuses = Counter(o.reach_row.get("status", "") for o in run.outputs)
     flag_counts: Counter = Counter()
@@ -306,7 +307,7 @@ def summarise(run: RunResult, out=None, report=None) -> RunSummary:
         tr = o.result.transects
         transects += len(tr)
         transects_ok += int((tr["status"] == "ok").sum())
-        trusted += int(tr["confidence"].isin(("high", "medium")).sum())
+        trusted += int(tr["confidence"].isin(TRUSTED_CONFIDENCE).sum())
         flagged += int(sum(has_quality_flag(f) for f in tr["flags"]))
         oob_t += int((tr["flows_out"] != "").sum())
         for f in tr["flags"]:

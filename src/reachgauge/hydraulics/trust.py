@@ -17,6 +17,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from reachgauge import flags
+from reachgauge.hydraulics.bankfull.pick import TRUSTED_CONFIDENCE
 
 # closed-hollow: a neighbour closes the pick's water when its bed rises to within this
 # fraction of the pick's depth of the pick's stage
@@ -127,13 +128,13 @@ class Trust:
         fast = self.published & supercritical(froude)
         conf = _demote(self.confidence, fast)
         return replace(self, confidence=conf, supercritical=fast,
-                       trusted=self.published & np.isin(conf, ("medium", "high")))
+                       trusted=self.published & np.isin(conf, TRUSTED_CONFIDENCE))
 
 
 def _demote(conf, mask):
     """Confidence "medium" or "high" lowered to "low" where ``mask``."""
     conf = np.asarray(conf, dtype=object)
-    return np.where(mask & np.isin(conf, ("medium", "high")), "low", conf).astype(object)
+    return np.where(mask & np.isin(conf, TRUSTED_CONFIDENCE), "low", conf).astype(object)
 
 
 def assess(picks, ok, chainage, bed, snap_far) -> Trust:
@@ -159,7 +160,7 @@ def assess(picks, ok, chainage, bed, snap_far) -> Trust:
     published = own & ~zero & ~hollow
     alone = isolated(published, ok)
     conf = np.where(ok & ~published, "none", _demote(picks.confidence, alone)).astype(object)
-    trusted = published & np.isin(conf, ("medium", "high"))
+    trusted = published & np.isin(conf, TRUSTED_CONFIDENCE)
     return Trust(published, trusted, conf, zero, hollow, off, alone, np.zeros(ok.size, bool))
 
 

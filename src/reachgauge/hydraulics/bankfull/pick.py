@@ -47,7 +47,7 @@ _FLAG_SETS[:] = [tuple(f for i, f in enumerate(_FLAG_BITS) if code >> i & 1)
 _FLAG_TEXT = np.array([";".join(f) for f in _FLAG_SETS], dtype=object)
 # confidence by level: 0 invalid profile, 1 no pick of the method's own (a fallback)
 _CONFIDENCE = np.array(["", "none", "low", "medium", "high"], dtype=object)
-CONFIDENCE_LEVELS = ("none", "low", "medium", "high")
+# the confidences whose picks the reach's figures use
 TRUSTED_CONFIDENCE = ("medium", "high")
 
 
@@ -58,9 +58,10 @@ class BankfullPick:
     stage, depth (m): water-surface elevation and depth above the thalweg.
     method: the method asked for; source: the one that gave ``stage`` (``method``
     itself, or the fallback: "methods-median" | "profile-end"; a fallback stage has
-    confidence "none" and is not a bankfull figure). left_bank, right_bank: offsets (m) of the water's
-    edges at ``stage`` (for an automatic method, half a break rise below it, so that a
-    stage in the middle of the spread onto a floodplain still gives the bank tops).
+    confidence "none" and is not a bankfull figure). left_bank, right_bank: offsets
+    (m) of the water's edges at ``stage`` (for an automatic method, half a break rise
+    below it, so that a stage in the middle of the spread onto a floodplain still
+    gives the bank tops).
     confidence: "high" | "medium" | "low" | "none". flags: codes from
     :data:`reachgauge.flags.FLAGS`. candidates: stage (m, NaN where it found no break)
     of every automatic method. tolerance (m): the agreement tolerance used.
