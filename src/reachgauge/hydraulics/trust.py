@@ -5,7 +5,7 @@ A pick is *published* (its figures written) when the chosen method gave it and n
 test below withholds it; it is *trusted* when it is published with confidence
 "medium" or "high" (:mod:`reachgauge.hydraulics.bankfull.pick`). The reach's bankfull
 figures are medians over the trusted picks only, and a reach whose trusted picks are
-fewer than half of its transects gets the status ``bankfull-unsupported`` and no
+not more than half of its transects gets the status ``bankfull-unsupported`` and no
 bankfull figures. Every function takes arrays over the transects of one reach and
 returns arrays: no loop over transects.
 """
