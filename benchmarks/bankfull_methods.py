@@ -127,10 +127,10 @@ def main(argv=None):
     best = min(AUTOMATIC_METHODS, key=lambda m: (score[m]["miss"], np.nanmean(score[m]["p90"])))
     print(f"Default by this evidence: {best}")
     print()
-    print("Confidence of the default pick (share high / medium / low)")
+    print("Confidence of the default pick (share high / medium / low / none)")
     for name, c in confid.items():
         c = np.array(c)
-        print(f"  {name:22s} " + " ".join(f"{np.mean(c == k):5.0%}" for k in ("high", "medium", "low")))
+        print(f"  {name:22s} " + " ".join(f"{np.mean(c == k):5.0%}" for k in ("high", "medium", "low", "none")))
     syn = compound_channel(noise=0.05, seed=0)
     reps = 200
     t = time.perf_counter()

@@ -136,11 +136,13 @@ def test_inset_bench_bench_index_finds_it_bank_top_does_not():
 
 # -------------------------------------------------------------- no floodplain at all
 @pytest.mark.parametrize("method", AUTOMATIC_METHODS)
-def test_v_valley_every_method_low_confidence_no_clear_break(method):
+def test_v_valley_every_method_no_confidence_no_clear_break(method):
+    # a V has no floodplain: the stage is a fallback, confidence "none" (issue 9)
     for syn in [v_valley()] + [v_valley(noise=0.05, seed=s) for s in range(6)]:
         pick = pick_bankfull(syn.section, method)
-        assert pick.confidence == "low", syn
+        assert pick.confidence == "none", syn
         assert "no-clear-break" in pick.flags
+        assert pick.source in ("methods-median", "profile-end") and pick.source == pick.fallback
         assert syn.section.thalweg <= pick.stage <= syn.section.top + 1e-9
 
 
@@ -148,7 +150,7 @@ def test_clean_v_valley_has_no_candidate_and_falls_back_to_the_profile_end():
     syn = v_valley()
     assert all(np.isnan(v) for v in candidate_stages(syn.section).values())
     pick = pick_bankfull(syn.section)
-    assert pick.fallback == "profile-end"
+    assert pick.fallback == "profile-end" and pick.source == "profile-end"
     assert pick.stage == pytest.approx(syn.section.top)
     assert set(pick.flags) >= {"no-clear-break", "spills-first"}
 
@@ -156,7 +158,8 @@ def test_clean_v_valley_has_no_candidate_and_falls_back_to_the_profile_end():
 def test_trapezoid_cut_at_its_bank_tops_spills_first():
     syn = trapezoid(noise=0.02, seed=3)
     pick = pick_bankfull(syn.section)
-    assert pick.confidence == "low"
+    # no floodplain inside the transect: a fallback at the profile's end, no confidence
+    assert pick.confidence == "none" and pick.source == "profile-end"
     assert "spills-first" in pick.flags
     assert pick.stage == pytest.approx(syn.section.top)
 
@@ -171,8 +174,9 @@ def test_method_without_a_break_falls_back_to_the_median_of_the_others():
     pick = pick_bankfull(syn.section, "min-width-depth")
     found = [v for v in cand.values() if np.isfinite(v)]
     assert pick.stage == pytest.approx(np.median(found))
-    assert pick.fallback == "methods-median"
-    assert pick.confidence == "low" and "no-clear-break" in pick.flags
+    assert pick.fallback == "methods-median" and pick.source == "methods-median"
+    assert pick.method == "min-width-depth"
+    assert pick.confidence == "none" and "no-clear-break" in pick.flags
 
 
 # ---------------------------------------------------------------- user-given depths
@@ -310,7 +314,9 @@ def test_property_any_profile_gets_a_pick_never_an_error(p, method):
     cs = CrossSection(*p)
     pick = pick_bankfull(cs, method)
     assert isinstance(pick, BankfullPick)
-    assert pick.confidence in ("high", "medium", "low")
+    assert pick.confidence in ("high", "medium", "low", "none")
+    assert (pick.confidence == "none") == ("no-clear-break" in pick.flags)
+    assert pick.source == (pick.fallback or method)
     assert set(pick.flags) <= set(FLAGS)
     assert cs.thalweg - 1e-9 <= pick.stage <= max(cs.top, cs.thalweg) + 1e-9
     assert set(pick.candidates) == set(AUTOMATIC_METHODS)

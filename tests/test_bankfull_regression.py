@@ -16,6 +16,13 @@ What must match and how closely:
 - the bench index keeps its definition too (its reference rate is still the exact
   median of the index below each candidate peak), so it is compared exactly as well.
 
+Changed on purpose since (issue 9, "no channel, no confident figure"), and changed in
+the reference below to match, marked "issue 9": a fallback stage (the chosen method
+found no break) has confidence "none" instead of "low"; a pick that too few methods
+confirm is flagged ``break-unconfirmed`` instead of a second ``no-clear-break``; and
+a pick whose bank lies within three sample steps of a transect end is flagged
+``break-at-end`` and rated "low".
+
 Sections: the synthetic families of tests/section_fixtures.py (compound channels
 with every variation benchmarks/bankfull_methods.py uses, V valleys, trapezoids,
 hydro-flattened beds) and random ground lines; padded into one Profiles of unequal
@@ -217,8 +224,10 @@ def r_pick(section, method, fixed_depth=None, regional=None):
     if found.size and not agree.all():
         flags.append("methods-disagree")
     if 2 * found.size <= 4 and "no-clear-break" not in flags:
-        flags.append("no-clear-break")
-    if "no-clear-break" in flags or "spills-first" in flags:
+        flags.append("break-unconfirmed")            # issue 9: was "no-clear-break"
+    if "no-clear-break" in flags:
+        confidence = "none"                          # issue 9: a fallback, was "low"
+    elif {"break-unconfirmed", "spills-first"} & set(flags):
         confidence = "low"
     elif found.size >= 3 and agree.all():
         confidence = "high"
@@ -231,6 +240,14 @@ def r_pick(section, method, fixed_depth=None, regional=None):
     width = float(g.top_width[1])
     if r_is_flat(section, width if width > 0 else None):
         flags.append("flat-thalweg")
+    # issue 9: a bank of an automatic pick of its own within 3 sample steps of an end
+    min_run = 3 * float(np.median(np.diff(section.offset)))
+    if method not in R_USER and "no-clear-break" not in flags and (
+            g.left_edge[1] - section.offset[0] <= min_run
+            or section.offset[-1] - g.right_edge[1] <= min_run):
+        flags.append("break-at-end")
+        if confidence != "none":
+            confidence = "low"
     return dict(stage=float(stage), depth=float(depth), left_bank=float(g.left_edge[1]),
                 right_bank=float(g.right_edge[1]), confidence=confidence, flags=tuple(flags),
                 candidates=[cand[m] for m in R_METHODS], tolerance=tol, fallback=fallback,

@@ -4,6 +4,12 @@ writer and the report.
 A transect or reach carries a ``status`` (``ok`` or the first reason it could not
 be computed) and ``flags``: zero or more codes, joined by ``;`` in outputs, for
 results that were computed but deserve a look. Codes are our own.
+
+Every flag has a severity (:data:`SEVERITY`, one of :data:`SEVERITIES`):
+``information`` (the figures stand; the flag says how they were made), ``check``
+(the figures are published; look at the section before relying on them) and
+``do not use`` (the terrain cannot support a bankfull figure here: the bankfull
+figures are withheld, NaN, and the reach's summary leaves the transect out).
 """
 
 from __future__ import annotations
@@ -20,8 +26,13 @@ REACH_STATUS = {
     "failed": "an unexpected error; see the run log",
     # appended by the GIS issue
     "zero-length": "the line has zero length (all its vertices coincide)",
-    "no-sections": "no transect of the reach has enough terrain data",
+    "no-sections": "no transect of the reach gives a section: too little terrain data, or no "
+                   "ground above the thalweg on one side (no channel)",
     "bad-input": "this reach's own data is unusable (see the message)",
+    # appended by the no-channel change (issue 9)
+    "bankfull-unsupported": "no more than half of the reach's transects have a trusted bankfull "
+                            "pick (a channel with a floodplain break): the reach's bankfull "
+                            "figures are withheld; the message counts the reasons",
 }
 TRANSECT_STATUS = {
     "ok": "processed",
@@ -43,7 +54,8 @@ FLAGS = {
     "carved": "thalweg elevation moved by conditioning the profile (a hump breached or a pit filled)",
     # bankfull (bankfull issue)
     "methods-disagree": "bankfull methods disagree by more than the tolerance",
-    "no-clear-break": "no clear break in the section's shape: low confidence in bankfull",
+    "no-clear-break": "the chosen bankfull method found no floodplain break in the section: "
+                      "no bankfull figure",
     "spills-first": "the section spills over an end of the profile before a bank break",
     "flat-thalweg": "flat thalweg: likely the water surface at the flight, not the bed",
     "baseflow-added": "the unseen channel under the flat water surface was added back "
@@ -62,7 +74,48 @@ FLAGS = {
     "reshaped-profile": "conditioning moved a large share of the reach's stations far (humps "
                         "breached, pits filled): the slope describes a reshaped profile, "
                         "perhaps ground with no continuous channel",
+    # appended by the no-channel change (issue 9)
+    "break-unconfirmed": "the chosen method found a break but fewer than half of the automatic "
+                         "methods found one: low confidence, left out of the reach's medians",
+    "break-at-end": "a bank of the pick lies at an end of the transect: the bank may lie beyond "
+                    "it (widen with --half-width); low confidence, left out of the reach's "
+                    "medians",
+    "supercritical": "Froude number above 1 at bankfull, rare in natural channels over a reach: "
+                     "check the slope, n and the section",
+    "zero-depth": "the bankfull stage is not above the thalweg, or the channel between the "
+                  "banks has no width: no bankfull figure",
+    "closed-hollow": "water standing level at the pick's stage is held by higher bed up- and "
+                     "downstream within a few top widths: a closed depression (kettle, pond, "
+                     "pit), not a channel; no bankfull figure",
+    "off-channel": "the thalweg was found near the snap limit and the section shows no channel "
+                   "there: the line runs over ground with no channel; no bankfull figure",
+    "isolated-pick": "neither neighbouring transect shows a bankfull pick: a local feature "
+                     "(a hollow's rim, a ditch, a pit) rather than a channel; low confidence, "
+                     "left out of the reach's medians",
 }
+
+SEVERITIES = ("information", "check", "do not use")
+
+# severity of each flag; a code missing here is "check" (see severity())
+SEVERITY = {
+    "partial-nodata": "check", "off-raster": "check", "shortened": "information",
+    "crosses-neighbour": "check", "snap-far": "check", "flat-reach": "check",
+    "carved": "information", "methods-disagree": "check", "no-clear-break": "do not use",
+    "spills-first": "check", "flat-thalweg": "check", "baseflow-added": "information",
+    "bankfull-outlier": "check", "out-of-bank": "information", "over-profile": "check",
+    "n-unusual": "check", "n-unknown-class": "check", "water-surface": "information",
+    "reshaped-profile": "check", "break-unconfirmed": "check", "break-at-end": "check",
+    "supercritical": "check", "zero-depth": "do not use", "closed-hollow": "do not use",
+    "off-channel": "do not use", "isolated-pick": "check",
+}
+
+# flags that withhold a transect's bankfull figures
+WITHHELD = frozenset(c for c, s in SEVERITY.items() if s == "do not use")
+
+
+def severity(code: str) -> str:
+    """Severity of a flag code (:data:`SEVERITIES`); "check" for a code with none."""
+    return SEVERITY.get(code, "check")
 
 
 # results of the design-flow checks, not doubts about the section
@@ -96,6 +149,23 @@ def join_columns(columns, t: int, base=None) -> np.ndarray:
     return out
 
 
+def contains(text, code: str) -> np.ndarray:
+    """Items of an array of ';'-joined codes that hold ``code``, vectorised (bool)."""
+    t = np.asarray(text, dtype=object)
+    if t.size == 0:
+        return np.zeros(t.shape, bool)
+    padded = np.char.add(np.char.add(";", t.astype(str)), ";")
+    return np.char.find(padded, f";{code};") >= 0
+
+
+def contains_any(text, codes) -> np.ndarray:
+    """Items of an array of ';'-joined codes that hold any of ``codes`` (bool)."""
+    out = np.zeros(np.shape(text), bool)
+    for code in codes:                       # a handful of codes, not items
+        out |= contains(text, code)
+    return out
+
+
 def concat(a, b) -> np.ndarray:
     """Two arrays of ';'-joined codes joined item by item, vectorised."""
     a = np.asarray(a, dtype=object)
@@ -109,6 +179,6 @@ def markdown() -> str:
     out += [f"| `{k}` | {v} |" for k, v in REACH_STATUS.items()]
     out += ["", "| transect status | meaning |", "|---|---|"]
     out += [f"| `{k}` | {v} |" for k, v in TRANSECT_STATUS.items()]
-    out += ["", "| flag | meaning |", "|---|---|"]
-    out += [f"| `{k}` | {v} |" for k, v in FLAGS.items()]
+    out += ["", "| flag | severity | meaning |", "|---|---|---|"]
+    out += [f"| `{k}` | {severity(k)} | {v} |" for k, v in FLAGS.items()]
     return "\n".join(out) + "\n"

@@ -72,6 +72,9 @@ def check_network(net, cfg) -> None:
 def check_outputs(outputs, net, cfg) -> None:
     """Raise :class:`InputError` when no reach gave figures and none failed on a bug."""
     statuses = Counter(o.reach_row.get("status", "") for o in outputs)
-    if not outputs or statuses.get("ok") or statuses.get("failed"):
+    # a reach whose terrain supports no bankfull figure was still computed: its
+    # rating curves and the reason are results, not an input failure
+    if (not outputs or statuses.get("ok") or statuses.get("bankfull-unsupported")
+            or statuses.get("failed")):
         return
     raise _verdict(statuses, net, cfg, [o.reach_row.get("message", "") for o in outputs])

@@ -260,17 +260,23 @@ class RunSummary:
     report: Path | None
     elapsed: float
     warnings: list
+    trusted: int = 0                                     # transects with a trusted pick
+    withheld: dict = field(default_factory=dict)         # "do not use" flag -> transects
 
     def lines(self) -> list[str]:
         out = [f"reaches:    {self.reaches_ok} of {self.reaches} processed"
                + (f" ({', '.join(f'{v} {k}' for k, v in self.statuses.items())})"
                   if self.statuses else ""),
                f"transects:  {self.transects_ok} of {self.transects} with figures, "
+               f"{self.trusted} with a trusted bankfull pick, "
                f"{self.flagged} flagged for a look, {self.out_of_bank_transects} where a design "
                "flow leaves the channel"]
         if self.flag_counts:
             top = sorted(self.flag_counts.items(), key=lambda kv: -kv[1])[:6]
             out.append("flags:      " + ", ".join(f"{k} {v}" for k, v in top))
+        if self.withheld:
+            out.append("no bankfull figure (do not use): " + ", ".join(
+                f"{k} {v}" for k, v in sorted(self.withheld.items(), key=lambda kv: -kv[1])))
         if self.out_of_bank:
             out.append("out of bank: " + "; ".join(self.out_of_bank))
         if self.failed:
@@ -289,9 +295,12 @@ class RunSummary:
 def summarise(run: RunResult, out=None, report=None) -> RunSummary:
     from collections import Counter
 
+    from reachgauge.flags import has_quality_flag, severity
+    from reachgauge.hydraulics.bankfull import TRUSTED_CONFIDENCE
+
     statuses = Counter(o.reach_row.get("status", "") for o in run.outputs)
     flag_counts: Counter = Counter()
-    transects = transects_ok = flagged = oob_t = 0
+    transects = transects_ok = flagged = oob_t = trusted = 0
     oob = []
     for o in run.outputs:
         if o.result is None:
@@ -300,8 +309,7 @@ def summarise(run: RunResult, out=None, report=None) -> RunSummary:
         tr = o.result.transects
         transects += len(tr)
         transects_ok += int((tr["status"] == "ok").sum())
-        from reachgauge.flags import has_quality_flag
-
+        trusted += int(tr["confidence"].isin(TRUSTED_CONFIDENCE).sum())
         flagged += int(sum(has_quality_flag(f) for f in tr["flags"]))
         oob_t += int((tr["flows_out"] != "").sum())
         for f in tr["flags"]:
@@ -309,9 +317,10 @@ def summarise(run: RunResult, out=None, report=None) -> RunSummary:
         if o.reach_row.get("flows_out"):
             oob.append(f"{o.reach_id} ({o.reach_row['flows_out'].replace(';', ', ')})")
     ok = statuses.pop("ok", 0)
+    withheld = {k: v for k, v in flag_counts.items() if severity(k) == "do not use"}
     return RunSummary(len(run.outputs), ok, transects, transects_ok, flagged, oob_t, dict(flag_counts),
                       dict(statuses), oob, [o.reach_id for o in run.outputs if o.error],
-                      out, report, run.elapsed, run.warnings)
+                      out, report, run.elapsed, run.warnings, trusted, withheld)
 
 
 def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, report=None,

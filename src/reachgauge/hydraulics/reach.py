@@ -18,7 +18,7 @@ import pandas as pd
 
 from reachgauge import flags
 from reachgauge.errors import InputError
-from reachgauge.hydraulics import bankfull, calibration, capacity, rating, roughness
+from reachgauge.hydraulics import bankfull, calibration, capacity, rating, roughness, trust
 from reachgauge.hydraulics.bankfull.banks import sampling_blur
 from reachgauge.hydraulics.figures import section_figures
 from reachgauge.kernel import sections as K
@@ -156,8 +156,9 @@ def _calibrate(p, rs, obs, slope, n, banks, ok, rid):
     return cal, n_obs, (float(np.nanmedian(n_back)) if good.any() else np.nan)
 
 
-def _design(p, rid, chainage, flows, slope, n, banks, bf, ok):
-    """Design-flow rows per transect and per reach, and the per-transect results."""
+def _design(p, rid, chainage, flows, slope, n, banks, bf, ok, use):
+    """Design-flow rows per transect and per reach, and the per-transect results.
+    ``use``: the transects whose bankfull discharge the reach's median takes."""
     # a design flow is compared with what fills the section to the bankfull stage
     checks = capacity.check_flows(p, flows, slope, n, banks, bf["bankfull_stage"],
                                   bf["discharge_total"])
@@ -165,7 +166,7 @@ def _design(p, rid, chainage, flows, slope, n, banks, bf, ok):
     design = checks.rename(columns={"index": "station"})
     design.insert(0, "reach_id", rid)
     design["chainage"] = np.asarray(chainage, float)[design["station"].to_numpy(int)]
-    q_med = _nanmedian(bf["discharge_total"][ok])
+    q_med = _nanmedian(bf["discharge_total"][use])
     reach_flows = capacity.summarise_flows(checks, q_med, ok)
     if len(reach_flows):
         rf = reach_flows.copy()
@@ -193,11 +194,8 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
                               area_km2, blur=sampling_blur(getattr(rs, "sample_step", np.nan)))
     p = picks.profiles
     ok &= p.valid
-    banks = np.column_stack([picks.left_bank, picks.right_bank])
-    banks = np.where(np.isfinite(banks), banks, np.column_stack([p.first_offset, p.last_offset]))
-    summary = bankfull.summarise_reach(picks.depth[ok], picks.stage[ok])
-    outlier = np.zeros(t, bool)
-    outlier[np.nonzero(ok)[0]] = summary.outliers
+    tru, banks = _assess(rs, picks, ok, t)
+    pub = tru.published
 
     n, n_src, unknown = roughness.transect_n(
         rid, reach.attributes, t, params.roughness, cowan_terms=inputs.cowan,
@@ -209,15 +207,23 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
         n_src = np.full(t, "calibrated", dtype=object)
     unusual = (n[:, 1] < roughness.TABLE_RANGE[0]) | (n[:, 1] > roughness.TABLE_RANGE[1])
 
-    bf = _bankfull_figures(p, picks, slope, n, ok)
+    bf = _bankfull_figures(p, picks, slope, n, pub)
+    tru = tru.with_froude(bf["froude"])
+    status, message = _verdict(rs, picks, tru, t)
+    # the reach's bankfull figures: medians over the trusted picks, none when too few
+    use = tru.trusted & (status == "ok")
+    summary = bankfull.summarise_reach(picks.depth[use], picks.stage[use])
+    outlier = np.zeros(t, bool)
+    outlier[np.nonzero(use)[0]] = summary.outliers
     depths = rating.rating_depths(params.rating, summary.median_depth)
     curves = rating.rating_table(p, rid, rs.chainage, depths, slope, n, banks, ok)
     stages = rating.stage_table(p, rid, rs.chainage, params.rating, slope, n, banks, ok)
     design, checks, reach_flows = _design(p, rid, rs.chainage, inputs.flows, slope, n, banks,
-                                          bf, ok)
+                                          bf, ok, use)
     out_any, over_any, jump_any, flows_out = _flow_results(checks, t)
-    columns = [("bankfull-outlier", outlier), ("n-unknown-class", unknown), ("n-unusual", unusual),
-               ("out-of-bank", out_any), ("over-profile", over_any), ("stage-at-jump", jump_any)]
+    columns = tru.columns() + [
+        ("bankfull-outlier", outlier), ("n-unknown-class", unknown), ("n-unusual", unusual),
+        ("out-of-bank", out_any), ("over-profile", over_any), ("stage-at-jump", jump_any)]
     codes = flags.concat(np.asarray(rs.transect_flags, dtype=object).reshape(t), picks.codes)
     start = _line_start(rs, t)
     tr = pd.DataFrame({
@@ -225,9 +231,12 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
         "status": np.asarray(rs.transect_status, dtype=object), "flags": "",
         "thalweg_z": _thalweg_z(rs, p, ok), "thalweg_shift": np.asarray(rs.thalweg_shift, float),
         "slope": slope,
-        "bankfull_method": np.where(picks.confidence != "", picks.method, ""),
-        "confidence": picks.confidence,
-        "bank_left": banks[:, 0] - start, "bank_right": banks[:, 1] - start, "method_spread": _spread(picks.candidates),
+        # the method that gave the published stage; "none" where none is published
+        "bankfull_method": np.where(pub, picks.source, np.where(ok, "none", "")),
+        "confidence": tru.confidence,
+        "bank_left": np.where(pub, banks[:, 0] - start, np.nan),
+        "bank_right": np.where(pub, banks[:, 1] - start, np.nan),
+        "method_spread": _spread(picks.candidates),
         "n_channel": n[:, 1], "n_overbank_left": n[:, 0], "n_overbank_right": n[:, 2],
         "n_source": n_src, **bf, "n_observed": n_obs,
         "min_freeboard": capacity.least_freeboard(checks, t),
@@ -235,7 +244,8 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     })
     tr["flags"] = flags.join_columns(columns, t, codes)
     tr = tr[[c for c in schema.TRANSECT_FIELDS if c in tr.columns]]
-    reach_row = _reach_row(rs, tr, ok, summary, n, n_src, n_cal, picks, outlier, reach_flows)
+    reach_row = _reach_row(rs, tr, ok, use, summary, n, n_src, n_cal, outlier, reach_flows,
+                           (status, message, int(tru.trusted.sum())))
     profile = rs.profile.copy()
     profile.insert(0, "reach_id", rid)
     inside = np.arange(p.x.shape[1])[None, :] < p.size[:, None]
@@ -243,6 +253,29 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
                        calibration=cal, profile=profile, banks=banks,
                        sections_z=np.where(inside, p.z, np.nan),
                        offsets=np.where(inside, p.x - start[:, None], np.nan))
+
+
+def _assess(rs, picks, ok, t):
+    """The reach-scale tests of the picks (:func:`reachgauge.hydraulics.trust.assess`)
+    and the bank offsets (t, 2) every later step uses: a published pick's, else the
+    profile's ends (a withheld pick has no banks: its section is one channel)."""
+    p = picks.profiles
+    snap_far = flags.contains(np.asarray(rs.transect_flags, dtype=object).reshape(t), "snap-far")
+    tru = trust.assess(picks, ok, rs.chainage, _thalweg_z(rs, p, ok), snap_far)
+    banks = np.column_stack([picks.left_bank, picks.right_bank])
+    banks = np.where(tru.published[:, None] & np.isfinite(banks), banks,
+                     np.column_stack([p.first_offset, p.last_offset]))
+    return tru, banks
+
+
+def _verdict(rs, picks, tru, t):
+    """The reach's status and message: cutting's own where it is not ok, else the
+    verdict on the share of trusted picks (:func:`reachgauge.hydraulics.trust.verdict`)."""
+    if rs.status != "ok":
+        return rs.status, rs.message
+    why = flags.concat(picks.codes, flags.join_columns(tru.columns(), t))
+    status, message = trust.verdict(tru.trusted, rs.transect_status, why, t)
+    return status, "; ".join(m for m in (rs.message, message) if m)
 
 
 def _flow_results(checks, t: int):
@@ -271,26 +304,31 @@ def _spread(cand):
     return np.where(found.any(axis=1), hi - lo, np.nan)
 
 
-def _reach_row(rs, tr, ok, summary, n, n_src, n_cal, picks, outlier, reach_flows) -> dict:
+def _reach_row(rs, tr, ok, use, summary, n, n_src, n_cal, outlier, reach_flows,
+               verdict) -> dict:
+    """The reach's summary row; bankfull medians over ``use`` (the trusted picks);
+    ``verdict``: (status, message, number of trusted picks)."""
     reach = rs.reach
-    q = tr["discharge"].to_numpy(float)[ok]
+    status, message, trusted = verdict
+    q = tr["discharge"].to_numpy(float)[use]
     has_flows = len(reach_flows) > 0
     return {
-        "reach_id": str(reach.reach_id), "name": reach.name or "", "status": rs.status,
-        "message": rs.message, "orientation": reach.orientation, "reach_length": reach.length_m,
+        "reach_id": str(reach.reach_id), "name": reach.name or "", "status": status,
+        "message": message, "orientation": reach.orientation, "reach_length": reach.length_m,
         "transects": len(tr), "transects_ok": int(ok.sum()),
         "transects_flagged": int(sum(flags.has_quality_flag(f) for f in tr["flags"])),
+        "transects_trusted": trusted,
         "slope": rs.reach_slope, "slope_flags": getattr(rs, "slope_flags", ""),
         "bankfull_depth": summary.median_depth, "depth_spread": summary.iqr,
-        "top_width": _nanmedian(tr["top_width"].to_numpy(float)[ok]),
-        "flow_area": _nanmedian(tr["flow_area"].to_numpy(float)[ok]),
+        "top_width": _nanmedian(tr["top_width"].to_numpy(float)[use]),
+        "flow_area": _nanmedian(tr["flow_area"].to_numpy(float)[use]),
         "discharge": _nanmedian(q),
         "discharge_p25": float(np.nanpercentile(q, 25)) if q.size else np.nan,
         "discharge_p75": float(np.nanpercentile(q, 75)) if q.size else np.nan,
-        "velocity": _nanmedian(tr["velocity"].to_numpy(float)[ok]),
+        "velocity": _nanmedian(tr["velocity"].to_numpy(float)[use]),
         "n_channel": float(np.median(n[ok, 1])) if ok.any() else float(n[0, 1]) if len(n) else np.nan,
         "n_source": n_src[0] if len(n_src) else "", "n_calibrated": n_cal,
-        "confidence_low": int(((picks.confidence == "low") & ok).sum()),
+        "confidence_low": int((tr["confidence"].to_numpy(object) == "low").sum()),
         "outliers": int(outlier.sum()),
         "flows_out": ";".join(reach_flows.loc[reach_flows.out_of_bank, "flow"]) if has_flows else "",
         "worst_ratio": float(reach_flows["q_ratio"].max()) if has_flows else np.nan,

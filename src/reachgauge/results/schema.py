@@ -38,12 +38,16 @@ TRANSECT_FIELDS = {
     "thalweg_z": ("length", "thalweg (lowest ground) elevation"),
     "thalweg_shift": ("length", "thalweg offset from the digitised centreline, + towards the right bank"),
     "slope": ("none", "slope used at this station (dimensionless)"),
-    "bankfull_method": ("text", "method that picked the bankfull stage"),
-    "confidence": ("text", "confidence in the bankfull stage: high, medium or low"),
+    "bankfull_method": ("text", "method that gave the published bankfull stage; 'none' where no "
+                                "stage is published (the flags say why)"),
+    "confidence": ("text", "confidence in the bankfull stage: high, medium, low, or none where "
+                           "no figure is published; only high and medium enter the reach's "
+                           "figures"),
     "bankfull_stage": ("length", "bankfull water-surface elevation"),
     "bankfull_depth": ("length", "bankfull stage minus thalweg elevation"),
     "bank_left": ("length", "offset of the left bank along the transect line as written, from its "
-                            "start (a transect cut short starts at its cut end)"),
+                            "start (a transect cut short starts at its cut end); empty where no "
+                            "bankfull stage is published"),
     "bank_right": ("length", "offset of the right bank along the transect line as written"),
     "method_spread": ("length", "range of the bankfull depths given by the automatic methods"),
     "n_channel": ("n", "Manning's n of the channel"),
@@ -77,27 +81,32 @@ TRANSECT_FIELDS = {
 REACH_FIELDS = {
     "reach_id": ("text", "reach identifier"),
     "name": ("text", "reach name from the streams file"),
-    "status": ("text", "ok, or why the reach has no figures"),
+    "status": ("text", "ok, or why the reach has no figures (bankfull-unsupported: no bankfull "
+                       "figures)"),
     "message": ("text", "details of the status"),
     "orientation": ("text", "how the downstream direction was decided"),
     "reach_length": ("length", "centreline length"),
     "transects": ("count", "transects cut"),
     "transects_ok": ("count", "transects with figures"),
     "transects_flagged": ("count", "transects with a flag other than the design-flow results"),
+    "transects_trusted": ("count", "transects with a trusted bankfull pick (published, confidence "
+                                   "high or medium): the reach's bankfull figures are their "
+                                   "medians, withheld when they are no more than half the "
+                                   "transects"),
     "slope": ("none", "reach slope (fit over the whole reach)"),
     "slope_flags": ("text", "flags of the slope estimate"),
-    "bankfull_depth": ("length", "median bankfull depth of the transects"),
-    "depth_spread": ("length", "interquartile range of the transects' bankfull depths"),
-    "top_width": ("length", "median bankfull top width"),
-    "flow_area": ("area", "median bankfull channel flow area"),
-    "discharge": ("discharge", "median bankfull discharge"),
-    "discharge_p25": ("discharge", "25th percentile of the transects' bankfull discharge"),
-    "discharge_p75": ("discharge", "75th percentile of the transects' bankfull discharge"),
-    "velocity": ("velocity", "median bankfull velocity"),
+    "bankfull_depth": ("length", "median bankfull depth of the trusted picks"),
+    "depth_spread": ("length", "interquartile range of the trusted picks' bankfull depths"),
+    "top_width": ("length", "median bankfull top width of the trusted picks"),
+    "flow_area": ("area", "median bankfull channel flow area of the trusted picks"),
+    "discharge": ("discharge", "median bankfull discharge of the trusted picks"),
+    "discharge_p25": ("discharge", "25th percentile of the trusted picks' bankfull discharge"),
+    "discharge_p75": ("discharge", "75th percentile of the trusted picks' bankfull discharge"),
+    "velocity": ("velocity", "median bankfull velocity of the trusted picks"),
     "n_channel": ("n", "Manning's n of the channel used for the reach"),
     "n_source": ("text", "where the channel n came from"),
     "n_calibrated": ("n", "median channel n back-calculated from measured flows (if any)"),
-    "confidence_low": ("count", "transects whose bankfull stage has low confidence"),
+    "confidence_low": ("count", "transects whose published bankfull stage has low confidence"),
     "outliers": ("count", "transects whose bankfull depth is an outlier for the reach"),
     "flows_out": ("text", "design flows above the reach's median discharge at the bankfull stage"),
     "worst_ratio": ("none", "largest q_ratio of the design flows"),

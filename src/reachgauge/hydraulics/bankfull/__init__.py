@@ -42,7 +42,9 @@ bounded size), and every method is an array operation over (transects, stages):
 
 All lengths are metres, elevations metres, areas m² (drainage areas km²). The scales
 of the shape tests (noise σ, break rise δ) are in :mod:`.scales`; confidence compares
-the automatic methods (:func:`pick_bankfull`). Lidar does not see through water
+the automatic methods (:func:`pick_bankfull`), and is "none" where the chosen method
+finds no break: its fallback stage is no bankfull figure (the reach-scale tests of the
+picks are in :mod:`reachgauge.hydraulics.trust`). Lidar does not see through water
 (Smart, Bind & Duncan, 2009, MODSIM): :func:`baseflow_correct` adds the unseen
 channel back under a flat water surface, and the pick flags a suspiciously flat
 thalweg.
@@ -64,8 +66,9 @@ from reachgauge.hydraulics.bankfull.methods import (AUTOMATIC_METHODS, BENCH_RAT
                                                     candidates)
 from reachgauge.hydraulics.bankfull.peaks import PLATEAU_FRACTION
 from reachgauge.hydraulics.bankfull.pick import (DEFAULT_METHOD, TOLERANCE_FLOOR,
-                                                 TOLERANCE_FRACTION, USER_METHODS, BankfullParams,
-                                                 BankfullPick, Picks, pick_all, pick_bankfull)
+                                                 TOLERANCE_FRACTION, TRUSTED_CONFIDENCE,
+                                                 USER_METHODS, BankfullParams, BankfullPick, Picks,
+                                                 pick_all, pick_bankfull)
 from reachgauge.hydraulics.bankfull.regional import (SQ_MILE_KM2, regional_coef_to_si,
                                                      regional_depth)
 from reachgauge.hydraulics.bankfull.scales import (BREAK_RISE_FLOOR, MAX_STAGES,
@@ -77,8 +80,8 @@ __all__ = [
     "AUTOMATIC_METHODS", "BENCH_RATIO", "BREAK_RISE_FLOOR", "DEFAULT_METHOD", "FLAT_TOLERANCE",
     "HYDRAULIC_DEPTH_PROMINENCE", "MAX_STAGES", "MIN_DEPTH_MULTIPLE", "MIN_RUN_SAMPLES",
     "NOISE_MULTIPLE", "PLATEAU_FRACTION", "SPREAD_FRACTION", "SQ_MILE_KM2", "TOLERANCE_FLOOR",
-    "TOLERANCE_FRACTION", "USER_METHODS", "WIDTH_DEPTH_PROMINENCE", "BankfullParams",
-    "BankfullPick", "Picks", "ReachBankfull", "baseflow_correct", "candidate_stages",
+    "TOLERANCE_FRACTION", "TRUSTED_CONFIDENCE", "USER_METHODS", "WIDTH_DEPTH_PROMINENCE",
+    "BankfullParams", "BankfullPick", "Picks", "ReachBankfull", "baseflow_correct", "candidate_stages",
     "candidates", "correct_profiles", "flat_thalweg_width", "is_flat_thalweg", "pick_all",
     "pick_bankfull", "profile_noise", "regional_coef_to_si", "regional_depth", "summarise_reach",
 ]

@@ -1,6 +1,15 @@
 """The bankfull pick of every transect of a reach at once: the stage by the chosen
 method, the fallbacks where it finds no break, the confidence and the flags.
 
+A stage is *published* only where the chosen method gave it (or the user did, by
+a fixed depth or a regional curve). Where the chosen automatic method finds no
+floodplain break the section shows no channel the method can read: a fallback stage
+is still computed (``source`` says which: the median of the other methods' breaks,
+else the lower end of the profile) for callers who want one, but its confidence is
+"none" and it carries ``no-clear-break``, whose severity is "do not use"
+(:mod:`reachgauge.flags`): the run withholds its figures and leaves it out of every
+reach figure.
+
 :func:`pick_all` works on :class:`~reachgauge.kernel.sections.Profiles` (all the
 transects of a reach); :func:`pick_bankfull` is its one-row view for one
 :class:`~reachgauge.kernel.crosssection.CrossSection`. Both run the same array code.
@@ -30,13 +39,16 @@ DEFAULT_METHOD = "bank-top"
 TOLERANCE_FLOOR = 0.1
 TOLERANCE_FRACTION = 0.1
 # flag codes by bit, in the order a pick lists them
-_FLAG_BITS = ("no-clear-break", "spills-first", "methods-disagree", "no-clear-break",
-              "flat-thalweg", "baseflow-added")
+_FLAG_BITS = ("no-clear-break", "spills-first", "methods-disagree", "break-unconfirmed",
+              "flat-thalweg", "baseflow-added", "break-at-end")
 _FLAG_SETS = np.empty(1 << len(_FLAG_BITS), dtype=object)
 _FLAG_SETS[:] = [tuple(f for i, f in enumerate(_FLAG_BITS) if code >> i & 1)
                  for code in range(_FLAG_SETS.size)]
 _FLAG_TEXT = np.array([";".join(f) for f in _FLAG_SETS], dtype=object)
-_CONFIDENCE = np.array(["", "low", "medium", "high"], dtype=object)
+# confidence by level: 0 invalid profile, 1 no pick of the method's own (a fallback)
+_CONFIDENCE = np.array(["", "none", "low", "medium", "high"], dtype=object)
+# the confidences whose picks the reach's figures use
+TRUSTED_CONFIDENCE = ("medium", "high")
 
 
 @dataclass(frozen=True)
@@ -44,11 +56,13 @@ class BankfullPick:
     """The bankfull stage of one section and how sure the pick is.
 
     stage, depth (m): water-surface elevation and depth above the thalweg.
-    method: the method asked for. left_bank, right_bank: offsets (m) of the banks:
-    for a user's stage the water's edges there; for an automatic method the bank
-    tops, where the least-squares lines of the bank faces reach the stage
-    (:mod:`~reachgauge.hydraulics.bankfull.banks`).
-    confidence: "high" | "medium" | "low". flags: codes from
+    method: the method asked for; source: the one that gave ``stage`` (``method``
+    itself, or the fallback: "methods-median" | "profile-end"; a fallback stage has
+    confidence "none" and is not a bankfull figure). left_bank, right_bank: offsets
+    (m) of the banks: for a user's stage the water's edges there; for an automatic
+    method the bank tops, where the least-squares lines of the bank faces reach the
+    stage (:mod:`~reachgauge.hydraulics.bankfull.banks`).
+    confidence: "high" | "medium" | "low" | "none". flags: codes from
     :data:`reachgauge.flags.FLAGS`. candidates: stage (m, NaN where it found no break)
     of every automatic method. tolerance (m): the agreement tolerance used.
     fallback: "" when ``method`` gave the stage, "methods-median" when it found no
@@ -69,6 +83,7 @@ class BankfullPick:
     fallback: str = ""
     noise: float = float("nan")
     break_rise: float = float("nan")
+    source: str = ""
 
 
 @dataclass(frozen=True)
@@ -95,7 +110,10 @@ class Picks:
     where the profile is invalid; confidence, fallback (t,) str ("" where invalid);
     flags: t tuples of codes; candidates (t, 4) stages of :data:`AUTOMATIC_METHODS`;
     method: the method asked for; profiles: the profiles the picks were made on
-    (after any baseflow correction), which every later step uses.
+    (after any baseflow correction), which every later step uses. source (t,) str:
+    the method that gave each stage (``method``, "methods-median", "profile-end";
+    "" where invalid); published (t,) bool: a valid profile whose stage the chosen
+    method (or the user) gave, not a fallback.
     """
 
     stage: np.ndarray
@@ -113,6 +131,8 @@ class Picks:
     profiles: object
     codes: np.ndarray = None   # (t,) the flags ';'-joined
     bits: np.ndarray = None    # (t,) the flags as bits of _FLAG_BITS
+    source: np.ndarray = None
+    published: np.ndarray = None
 
 
 def check_args(method, fixed_depth=None, drainage_area_km2=None, regional_coef=None,
@@ -151,18 +171,25 @@ def _found_median(cand):
 
 
 def _stage(p, cand, method, user_depth):
-    """Stage by ``method`` (t,), whether the method itself found no break, and the
-    fallback used ("" | "methods-median" | "profile-end")."""
+    """Stage (t,) by ``method``; whether the method itself found no break; the
+    fallback used ("" | "methods-median" | "profile-end"); and the source of each
+    stage: ``method`` where it gave the stage, else the fallback's name.
+
+    A fallback stage is no bankfull figure (the chosen method saw no floodplain
+    break): it is kept for the banks of a caller who wants one and is marked by
+    confidence "none" and ``no-clear-break`` (see :func:`_pick`)."""
     t = p.count
     if method in USER_METHODS:
-        return p.thalweg + user_depth, np.zeros(t, bool), np.full(t, "", dtype=object)
+        return (p.thalweg + user_depth, np.zeros(t, bool), np.full(t, "", dtype=object),
+                np.full(t, method, dtype=object))
     own = cand[:, AUTOMATIC_METHODS.index(method)]
     missed = ~np.isfinite(own)
     median = _found_median(cand)
     by_median = missed & np.isfinite(median)
     stage = np.where(missed, np.where(by_median, median, p.top), own)
     fallback = np.where(missed, np.where(by_median, "methods-median", "profile-end"), "")
-    return stage, missed, fallback.astype(object)
+    source = np.where(missed, fallback, method)
+    return stage, missed, fallback.astype(object), source.astype(object)
 
 
 def _banks_and_flat(p, cand, stage, rise, user, blur=None):
@@ -197,7 +224,7 @@ def _pick(p: K.Profiles, method, user_depth=None, tolerance=None, sigma=None, fl
     ok = p.valid
     sc = scales(p, sigma, floor)
     cand = methods.candidates(p, sc)
-    stage, missed, fallback = _stage(p, cand, method, user_depth)
+    stage, missed, fallback, source = _stage(p, cand, method, user_depth)
     user = method in USER_METHODS
     spills = (stage >= p.top) & (user | (fallback == "profile-end"))
     depth = np.maximum(stage - p.thalweg, 0.0)
@@ -211,8 +238,13 @@ def _pick(p: K.Profiles, method, user_depth=None, tolerance=None, sigma=None, fl
     few = (2 * n_found <= len(AUTOMATIC_METHODS)) & ~missed
     left, right, flat = _banks_and_flat(p, cand, stage, sc.rise, user, blur)
     added = np.zeros(p.count, bool) if added is None else np.asarray(added, dtype=bool)
-    bits = missed * 1 + spills * 2 + disagree * 4 + few * 8 + flat * 16 + added * 32
-    level = np.where(missed | spills | few, 1, np.where((n_found >= 3) & agree, 3, 2))
+    at_end = _at_end(p, left, right, sc.min_run) & ~missed & ~user
+    bits = (missed * 1 + spills * 2 + disagree * 4 + few * 8 + flat * 16 + added * 32
+            + at_end * 64)
+    # none: a fallback, no pick of the method's own; low: a pick that stands alone, sits
+    # at a transect end or spills first; high: three or more methods agree with it
+    level = np.where(missed, 1, np.where(spills | few | at_end, 2,
+                                         np.where((n_found >= 3) & agree, 4, 3)))
 
     def valid(a):
         return np.where(ok, a, np.nan)
@@ -223,7 +255,16 @@ def _pick(p: K.Profiles, method, user_depth=None, tolerance=None, sigma=None, fl
         candidates=valid(cand.T).T, fallback=np.where(ok, fallback, "").astype(object),
         tolerance=valid(tol), noise=valid(sc.noise), break_rise=valid(sc.rise),
         method=method, profiles=p, codes=_FLAG_TEXT[np.where(ok, bits, 0)],
-        bits=np.where(ok, bits, 0))
+        bits=np.where(ok, bits, 0), source=np.where(ok, source, "").astype(object),
+        published=ok & ~missed)
+
+
+def _at_end(p, left, right, min_run):
+    """A bank of the pick within ``min_run`` (m, three sample steps) of an end of the
+    profile: the water's edge the pick rests on may lie beyond the transect, so the
+    break may be the water leaving the transect rather than a floodplain."""
+    with np.errstate(invalid="ignore"):
+        return ((left - p.first_offset) <= min_run) | ((p.last_offset - right) <= min_run)
 
 
 def pick_all(p, params: BankfullParams, drainage_area_km2=None, blur=None) -> Picks:
@@ -282,15 +323,17 @@ def pick_bankfull(section: CrossSection, method: str = DEFAULT_METHOD, *, fixed_
 
     Confidence: "high" when at least three automatic methods found a break and all
     found breaks agree with the stage within the tolerance; "medium" when the chosen
-    stage rests on a clear break but some method disagrees ("methods-disagree") or
-    too few found one; "low" when the chosen automatic method, or half or more of the
-    automatic methods, found no clear break ("no-clear-break"), or the section spills
-    over an end of the profile first ("spills-first").
+    stage rests on a clear break but some method disagrees ("methods-disagree");
+    "low" when half or more of the automatic methods found no break though the chosen
+    one did ("break-unconfirmed"), a bank of the pick lies at an end of the transect
+    ("break-at-end"), or the section spills over an end of the profile first
+    ("spills-first"); "none" when the chosen automatic method found no floodplain
+    break ("no-clear-break"): the stage is then a fallback, not a bankfull figure.
 
     Never raises for a section that merely has no clear answer: an automatic method
     that finds no break falls back to the median of the other methods' breaks, else
-    to the lower end of the profile (``fallback`` says which). Raises
-    :class:`InputError` for bad arguments.
+    to the lower end of the profile (``fallback`` and ``source`` say which), with
+    confidence "none". Raises :class:`InputError` for bad arguments.
     """
     if not isinstance(section, CrossSection):
         raise InputError(f"pick_bankfull needs a CrossSection, got {type(section).__name__}",
@@ -304,4 +347,4 @@ def pick_bankfull(section: CrossSection, method: str = DEFAULT_METHOD, *, fixed_
         confidence=q.confidence[0], flags=q.flags[0],
         candidates={m: float(v) for m, v in zip(AUTOMATIC_METHODS, q.candidates[0])},
         tolerance=float(q.tolerance[0]), fallback=q.fallback[0], noise=float(q.noise[0]),
-        break_rise=float(q.break_rise[0]))
+        break_rise=float(q.break_rise[0]), source=q.source[0])
