@@ -161,3 +161,10 @@ def test_a_deeper_ditch_beyond_the_thalweg_search_is_not_the_channel():
     ok = res.transects[res.transects.status == "ok"]
     np.testing.assert_allclose(ok.thalweg_z, rs.thalweg_z[ok.station], atol=1e-9)
     assert ok.bankfull_depth.to_numpy() == pytest.approx(H, abs=0.05)
+
+
+def test_a_transect_without_ground_has_no_thalweg_elevation():
+    # transect 7 of the fake reach is all nodata: its thalweg_z is no value, not 0
+    res = _analyse(fake_reach(), RunConfig(n=0.035))
+    row = res.transects.set_index("station").loc[7]
+    assert row.status == "no-data" and np.isnan(row.thalweg_z)

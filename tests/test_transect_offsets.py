@@ -39,3 +39,20 @@ def test_bank_offsets_of_shortened_transects_are_along_the_written_line(tmp_path
             xy = [g.interpolate(o).coords[0] for g, o in zip(ok.geometry, ok[side])]
             z = np.array([s[0] for s in ds.sample(xy)])
             assert np.all(np.abs(z - ok.bankfull_stage.to_numpy()) < 0.3), side
+
+
+def test_the_long_profile_and_the_sections_share_one_thalweg(tmp_path):
+    # one thalweg elevation per station: the profile's z_raw is the elevation the
+    # sections' depths are measured from (transects.thalweg_z), on noisy terrain where
+    # the middle sample and the lowest nearby sample differ by centimetres
+    line = meander_line(300, 20.0, 150.0, step=2.0)
+    v = make_valley_raster(tmp_path, line, res=1.0, margin=50, noise=0.03, seed=3)
+    streams = write_lines(tmp_path / "s.gpkg", [line], vertex_spacing=5.0)
+    out = tmp_path / "r.gpkg"
+    reachgauge.run(out, dem=v.path, streams=streams, half_width=30.0, snap_distance=5.0,
+                   spacing=10.0)
+    tr = gpd.read_file(out, layer="transects").set_index("station")
+    prof = gpd.read_file(out, layer="profile").set_index("station")
+    ok = tr.index[tr.status == "ok"]
+    assert len(ok) > 20
+    np.testing.assert_allclose(tr.loc[ok, "thalweg_z"], prof.loc[ok, "z_raw"], atol=1e-9)

@@ -192,15 +192,23 @@ def _cut(ds, raster, reach, cfg, neighbours):
     got = sampler.sample(ds, pts, z_factor=raster.z_factor)
     inside = (u[None, :] >= -lim.left[:, None] - 1e-9) & (u[None, :] <= lim.right[:, None] + 1e-9)
     z = np.where(inside, got.z, np.nan)
-    centre_i = n_half
-    tz = z[:, centre_i]
+    # the thalweg elevation: the lowest sample within the search distance of the
+    # re-centred line, the same point the section's water connects to
+    # (hydraulics.reach._channel_thalweg), so the long profile and the sections agree
+    candidates = np.where(near[None, :] & np.isfinite(z), z, np.inf)
+    low_col = np.argmin(candidates, axis=1)
+    low = candidates[np.arange(t), low_col]
+    tz = np.where(np.isfinite(z[:, n_half]) & np.isfinite(low), low, np.nan)
 
     # Transect status and flags, as arrays over transects.
     valid = np.isfinite(z).sum(axis=1)
     enough = (valid >= np.maximum(3, MIN_VALID_SHARE * inside.sum(axis=1))) & np.isfinite(tz)
     finite = np.isfinite(z)
-    left_max = np.max(np.where((u[None, :] < 0) & finite, z, -np.inf), axis=1)
-    right_max = np.max(np.where((u[None, :] > 0) & finite, z, -np.inf), axis=1)
+    # ground must rise above the thalweg on both sides of it (a transect along a
+    # hillslope's contour falls away on one side: no section)
+    col = np.arange(u.size)[None, :]
+    left_max = np.max(np.where((col < low_col[:, None]) & finite, z, -np.inf), axis=1)
+    right_max = np.max(np.where((col > low_col[:, None]) & finite, z, -np.inf), axis=1)
     depth = (left_max > tz) & (right_max > tz)
     status = np.where(~(tw.found & enough), "no-data",
                       np.where(depth, "ok", "no-depth")).astype(object)
