@@ -102,18 +102,18 @@ def _ramp(x, q):
 def apparent_width():
     """The table (q, W): W(q) is the width (units of σ) the face fit reads on a straight
     face of width q·σ blurred by a normal kernel of standard deviation σ. The ramp
-    is inverted at the fit's fractions by bisection (64 halvings: to machine
-    precision), for all q at once."""
+    is inverted at the fit's fractions by Chandrupatla's method
+    (scipy.optimize.elementwise.find_root) for all q at once."""
+    from scipy.optimize import elementwise
+
     q = np.concatenate([np.linspace(0.0, 8.0, 161), np.linspace(8.25, 40.0, 128)])[:, None]
     f = _fractions()[None, :]
-    lo = np.broadcast_to(-(q / 2 + 12.0), (q.size, f.size)).copy()
-    hi = np.broadcast_to(q / 2 + 12.0, (q.size, f.size)).copy()
-    for _ in range(64):
-        mid = 0.5 * (lo + hi)
-        below = _ramp(mid, q) < f
-        lo = np.where(below, mid, lo)
-        hi = np.where(below, hi, mid)
-    x = 0.5 * (lo + hi)
+    lo = np.broadcast_to(-(q / 2 + 12.0), (q.size, f.size))
+    hi = np.broadcast_to(q / 2 + 12.0, (q.size, f.size))
+    qq = np.broadcast_to(q, lo.shape)
+    ff = np.broadcast_to(f, lo.shape)
+    x = elementwise.find_root(lambda x, q_, f_: _ramp(x, q_) - f_, (lo, hi), args=(qq, ff),
+                              tolerances=dict(xatol=1e-12, xrtol=1e-14)).x
     fc = f - f.mean()
     w = (fc * (x - x.mean(axis=1, keepdims=True))).sum(axis=1) / (fc * fc).sum()
     return q[:, 0], w
