@@ -87,7 +87,7 @@ def run_case(work: Path, shape: str, res: float, noise: float, seed: int = 7):
     streams = write_lines(d / "streams.gpkg", [line], fields={"rid": ["A"]})
     out = d / "result.gpkg"
     reachgauge.run(out, dem=str(v.path), streams=str(streams), id_field="rid", spacing=10.0,
-                   half_width=30.0, n=N, overwrite=True)
+                   half_width=30.0, n=N, n_overbank=0.05, overwrite=True)
     tr = pyogrio.read_dataframe(out, layer="transects", read_geometry=False)
     tr = tr[tr.status == "ok"]
     top, area, perim, q = closed_form(v.channel_slope)

@@ -47,7 +47,8 @@ sys.path.insert(0, str(HERE.parent / "tests"))
 
 HALF_WIDTH = 30.0     # m either side of the centreline: 61 samples a transect at 1 m
 N_CHANNEL = 0.035     # Manning's n (the tool's default), used by both
-RATING = ["--rating-step", "0.05", "--rating-max-depth", "2.45"]  # depths 0, 0.05 .. 2.45
+RATING = ["--rating-step", "0.05", "--rating-max-depth", "2.45",   # depths 0, 0.05 .. 2.45
+          "--n-overbank", "0.05"]
 STAGES = 50
 REACHES = 4
 FLOWS = {"2-year": 5.0, "10-year": 10.0, "100-year": 25.0}  # m³/s; bankfull is about 17
@@ -266,7 +267,7 @@ def profile_run(inp: dict, out: Path, spacing: float, top: int = 15) -> None:
 
     cfg = RunConfig(dem=inp["dem"], streams=inp["streams"], id_field="rid", spacing=spacing,
                     half_width=HALF_WIDTH, rating_step=0.05, rating_max_depth=2.45,
-                    design_flows=inp["flows"], jobs=1)
+                    design_flows=inp["flows"], n_overbank=0.05, jobs=1)
     prof = cProfile.Profile()
     t = time.perf_counter()
     prof.enable()
