@@ -48,16 +48,19 @@ def test_demo_matches_the_truth_the_readme_quotes(demo):
     r = pyogrio.read_dataframe(demo / "demo_result.gpkg", layer="reaches").set_index("reach_id")
     # Tolerances from the basin's pixel (2 m) and noise (3-5 cm on open ground,
     # make_basin.py), for reach medians of about 40 transects:
-    depth_tol = 0.03   # the pick's stage step, a fifth of the break rise 3σ (≈ 2.4 cm at σ 4 cm)
+    # depth: the pick's stage step, a fifth of the break rise 3σ (≈ 2.4 cm at σ 4 cm),
+    # plus the bed level's error on the basin's dished beds (kernel.bed corrects the
+    # lowest sample for noise as if the bed were level: up to 1.5σ, about 3 cm)
+    depth_tol = 0.05
     width_tol = 2.0    # one pixel (the banks are located to sub-pixel accuracy)
     blur = 0.03        # share of the channel area the 2 m raster's blur moves past the banks
     #                    (bench_banks.py, synthetic channels at 2 m pixels: -2 to -3 %)
     for rid, t in truth.items():
         mean_depth = t["bankfull_area"] / t["bankfull_width"]
         assert r.loc[rid, "bankfull_depth"] == pytest.approx(t["bank_height"], abs=depth_tol)
-        # a stage off by depth_tol moves the area by width × depth_tol, plus the blur
+        # a stage off by the stage step (3 cm) moves the area by width × 3 cm, plus the blur
         assert r.loc[rid, "flow_area"] == pytest.approx(
-            t["bankfull_area"], rel=depth_tol / mean_depth + blur)
+            t["bankfull_area"], rel=0.03 / mean_depth + blur)
         assert abs(r.loc[rid, "top_width"] - t["bankfull_width"]) < width_tol
         # chainage along digitised lines (offsets to 4 m, 1 m jitter) runs a few % long,
         # and M2's embankment is conditioned out: 10 %

@@ -190,7 +190,10 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     ok = np.asarray(rs.transect_status, dtype=object) == "ok"
     z = np.where(ok[:, None], np.asarray(rs.elevations, dtype=float), np.nan)
     # the sections are sampled from the raster: the bank tops are corrected for that blur
-    picks = bankfull.pick_all(K.profiles(rs.offsets, z, _channel_thalweg(rs, z)), params.bankfull,
+    # depths from the bed level the cutting step measured (kernel.bed), the profile's z_raw
+    bed_z = np.asarray(getattr(rs, "thalweg_z", np.full(t, np.nan)), dtype=float)
+    picks = bankfull.pick_all(K.profiles(rs.offsets, z, _channel_thalweg(rs, z), bed_z),
+                              params.bankfull,
                               area_km2, blur=sampling_blur(getattr(rs, "sample_step", np.nan)))
     p = picks.profiles
     ok &= p.valid

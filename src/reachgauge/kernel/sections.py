@@ -97,7 +97,7 @@ class Profiles:
         return Profiles(*(getattr(self, f)[rows] for f in self.__dataclass_fields__))
 
 
-def profiles(offset, elevation, thalweg=None) -> Profiles:
+def profiles(offset, elevation, thalweg=None, bed=None) -> Profiles:
     """Build :class:`Profiles` from offsets (m,) shared or (t, m) per profile, and
     elevations (t, m) or (m,). NaN elevations are dropped (the ground line bridges
     the gap linearly). Offsets must increase along each row; callers check input
@@ -107,7 +107,9 @@ def profiles(offset, elevation, thalweg=None) -> Profiles:
     transect re-centred on the channel's lowest point: a deeper ditch or pond
     elsewhere on the transect is not the channel, and the water must be connected
     to the channel's thalweg). Default, or where that point has no elevation: the
-    row's first lowest point."""
+    row's first lowest point. ``bed`` (t,): the elevation depths are measured from
+    (:func:`reachgauge.kernel.bed.bed_level`), where finite and above the thalweg
+    point; default the thalweg point's own elevation."""
     z = np.array(elevation, dtype=float, ndmin=2)
     x = np.broadcast_to(np.asarray(offset, dtype=float), z.shape)
     ok = np.isfinite(z) & np.isfinite(x)
@@ -135,6 +137,9 @@ def profiles(offset, elevation, thalweg=None) -> Profiles:
     base = np.arange(t)[:, None] * m
     zf = z.ravel()
     zt = zf.take(base[:, 0] + i0)
+    if bed is not None:
+        b = np.broadcast_to(np.asarray(bed, dtype=float), (t,))
+        zt = np.where(np.isfinite(b) & (b > zt), b, zt)
     # running maxima outward: entry k covers the points i0-k..i0 (left), i0..i0+k (right)
     li = i0[:, None] - k
     ri = i0[:, None] + k

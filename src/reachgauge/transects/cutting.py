@@ -39,6 +39,8 @@ import shapely
 
 from reachgauge import flags as F
 from reachgauge.inputs import sampler
+from reachgauge.kernel import bed
+from reachgauge.kernel import sections as K
 from reachgauge.transects import slope, stations, thalweg
 from reachgauge.errors import InputError
 from reachgauge.inputs.network import Reach, RasterInfo
@@ -192,13 +194,17 @@ def _cut(ds, raster, reach, cfg, neighbours):
     got = sampler.sample(ds, pts, z_factor=raster.z_factor)
     inside = (u[None, :] >= -lim.left[:, None] - 1e-9) & (u[None, :] <= lim.right[:, None] + 1e-9)
     z = np.where(inside, got.z, np.nan)
-    # the thalweg elevation: the lowest sample within the search distance of the
-    # re-centred line, the same point the section's water connects to
-    # (hydraulics.reach._channel_thalweg), so the long profile and the sections agree
+    # the thalweg: the lowest sample within the search distance of the re-centred
+    # line, the point the section's water connects to (hydraulics.reach.
+    # _channel_thalweg); its elevation, the bed level the sections' depths are measured
+    # from, so the long profile and the sections agree
     candidates = np.where(near[None, :] & np.isfinite(z), z, np.inf)
     low_col = np.argmin(candidates, axis=1)
     low = candidates[np.arange(t), low_col]
-    tz = np.where(np.isfinite(z[:, n_half]) & np.isfinite(low), low, np.nan)
+    # the bed level below the lidar noise (kernel.bed): depths are measured from it
+    prof = K.profiles(u, z, low_col)
+    bed_z = bed.bed_level(prof, bed.noise(prof))
+    tz = np.where(np.isfinite(z[:, n_half]) & np.isfinite(low), bed_z, np.nan)
 
     # Transect status and flags, as arrays over transects.
     valid = np.isfinite(z).sum(axis=1)

@@ -38,7 +38,8 @@ def flat_run(p: K.Profiles, tolerance: float = FLAT_TOLERANCE):
     """First and last point index (t,), (t,) of the run of points within
     ``tolerance`` (m) of the thalweg elevation that contains the thalweg: the running
     maxima of the ground outward from the thalweg (the kernel's) that stay within it."""
-    limit = (p.thalweg + tolerance)[:, None]
+    # from the thalweg point itself (the lowest sample), not the bed level
+    limit = (p.z[np.arange(p.count), p.i0] + tolerance)[:, None]
     left = (p.left_max <= limit).sum(axis=1)
     right = (p.right_max <= limit).sum(axis=1)
     return p.i0 - (left - 1), p.i0 + right - 1
@@ -161,7 +162,9 @@ def correct_profiles(p: K.Profiles, depth=None, area=None,
     Z[rows, :k.shape[1]] = np.where(valid, zo, np.nan)
     thalweg = p.i0.copy()                       # rows are written without gaps
     thalweg[rows] = np.argmin(np.where(in_bed, zo, np.inf), axis=1)
-    return K.profiles(X, Z, thalweg)
+    bed = p.thalweg.copy()                      # a corrected row's bed is its new bottom
+    bed[rows] = np.nan
+    return K.profiles(X, Z, thalweg, bed)
 
 
 def baseflow_correct(section: CrossSection, depth=None, area=None,

@@ -26,6 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from reachgauge.hydraulics.bankfull import rows as R
+from reachgauge.kernel import bed
 from reachgauge.kernel.sections import Profiles
 
 BREAK_RISE_FLOOR = 0.05    # m: smallest rise of stage over which a break must show
@@ -36,27 +37,9 @@ MAX_STAGES = 4000          # trial stages per profile at most
 
 
 def noise(p: Profiles) -> np.ndarray:
-    """Robust elevation scatter σ (m) of each profile about its local ground line (t,).
-
-    Each interior point is compared with the straight line through its two
-    neighbours; for independent errors of standard deviation σ that residual has
-    variance σ²(1 + w² + (1−w)²), w the point's fractional position between its
-    neighbours. σ is the normal-scaled median absolute deviation of the normalised
-    residuals (:func:`reachgauge.hydraulics.bankfull.rows.mad`, the same figure as
-    scipy.stats.median_abs_deviation per row), which ignores the few vertices where
-    the true ground bends. 0 for a clean or hydro-flattened profile and for a
-    profile of fewer than 3 points.
-    """
-    x, z = p.x, p.z
-    t, m = z.shape
-    if m < 3:
-        return np.zeros(t)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        w = (x[:, 1:-1] - x[:, :-2]) / (x[:, 2:] - x[:, :-2])
-        r = z[:, 1:-1] - (z[:, :-2] + w * (z[:, 2:] - z[:, :-2]))
-        r = r / np.sqrt(1.0 + w * w + (1.0 - w) ** 2)
-    valid = np.arange(m - 2)[None, :] < (p.size - 2)[:, None]
-    return np.where(p.size >= 3, R.mad(r, valid), 0.0)
+    """Robust elevation scatter σ (m) of each profile (t,):
+    :func:`reachgauge.kernel.bed.noise`."""
+    return bed.noise(p)
 
 
 def profile_noise(section) -> float:
