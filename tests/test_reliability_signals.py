@@ -8,7 +8,7 @@ put its results in place must not touch them); SIGINT and SIGTERM give one true
 ``error:`` line, exit 128 + the signal number and leave no temporary file;
 SIGKILL leaves files that the next run removes; no worker process outlives its
 parent. The points are reached with the test hook of
-reachgauge.batch.lifecycle (REACHGAUGE_TEST_HOLD), so each signal lands where
+reachgauge.lifecycle (REACHGAUGE_TEST_HOLD), so each signal lands where
 the test says.
 """
 

@@ -25,7 +25,7 @@ from pathlib import Path
 import pytest
 
 import terrain_fixtures as tf
-from reachgauge.batch import lifecycle
+from reachgauge import lifecycle
 from reachgauge.cli.entry import main
 
 EXE = Path(sys.executable).with_name("reachgauge")

@@ -29,6 +29,10 @@ def _f(default, group, help, length=False, **kw):
     return field(default=default, metadata={"group": group, "help": help, "length": length, **kw})
 
 
+# rating stages per transect at most: rows of the rating table and the kernel's
+# (transects × stages) arrays stay in memory on a laptop
+MAX_RATING_STAGES = 2000
+
 BANKFULL_METHODS = ("bank-top", "min-width-depth", "bench", "max-hydraulic-depth", "fixed-depth",
                     "regional")
 

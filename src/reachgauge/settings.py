@@ -25,13 +25,10 @@ from pathlib import Path
 
 import numpy as np
 
-from reachgauge.config import FIELDS, PATH_FIELDS, RunConfig
+from reachgauge.config import FIELDS, MAX_RATING_STAGES, PATH_FIELDS, RunConfig
 from reachgauge.errors import InputError, ReachgaugeWarning, shown
 from reachgauge.manning import FOOT
 
-# rating stages per transect at most: rows of the rating table and the kernel's
-# (transects × stages) arrays stay in memory on a laptop
-MAX_RATING_STAGES = 2000
 # samples per transect at most (2 × half-width / sample step)
 MAX_SAMPLES = 100_000
 SCHEDULER = re.compile(r"^(?:(?:tcp|tls|ucx|ws|wss)://)?(\[[0-9a-fA-F:]+\]|[\w.-]+):(\d{1,5})$"

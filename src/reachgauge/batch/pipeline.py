@@ -19,7 +19,8 @@ import pandas as pd
 
 from reachgauge.transects import cutting
 from reachgauge.hydraulics import reach as hydraulics, roughness
-from reachgauge.batch import lifecycle, outcome
+from reachgauge import lifecycle
+from reachgauge.batch import outcome
 from reachgauge.inputs import checks as input_checks, network as network_mod, raster as raster_mod
 from reachgauge.inputs import tables
 from reachgauge.config import RunConfig

@@ -55,7 +55,7 @@ def quiet_logs() -> None:
 def main(argv=None) -> int:
     """Run one command; never lets a traceback of bad input or a signal reach
     the user."""
-    from reachgauge.batch import lifecycle
+    from reachgauge import lifecycle
 
     previous = {s: signal.getsignal(s) for s in lifecycle.SIGNALS}
     lifecycle.STATE.written, lifecycle.STATE.kept = [], []

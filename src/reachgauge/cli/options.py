@@ -99,7 +99,7 @@ class Progress:
 
     def __call__(self, out, done, total):
         if done == 1:
-            from reachgauge.batch.lifecycle import checkpoint
+            from reachgauge.lifecycle import checkpoint
 
             checkpoint("computing")
         if self.quiet:

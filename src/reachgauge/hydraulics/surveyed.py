@@ -21,7 +21,7 @@ from reachgauge.hydraulics import roughness
 from reachgauge.hydraulics.figures import figures
 from reachgauge.hydraulics.plausibility import section_doubts
 from reachgauge.kernel.crosssection import CrossSection
-from reachgauge.settings import MAX_RATING_STAGES
+from reachgauge.config import MAX_RATING_STAGES
 
 PART_NAMES = ("left overbank", "channel", "right overbank")
 

@@ -15,7 +15,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from reachgauge.batch import lifecycle
+from reachgauge import lifecycle
 from reachgauge.errors import InputError, OutputError
 from reachgauge.manning import FOOT as FOOT_
 
@@ -38,7 +38,7 @@ def check_writable(folder) -> None:
     """Create and remove a file in ``folder``: the surest test that results
     can be written there (permissions, a read-only disk). Stale temporary
     files of ended runs in the folder are removed on the way
-    (:mod:`reachgauge.batch.lifecycle`)."""
+    (:mod:`reachgauge.lifecycle`)."""
     folder = Path(folder)
     if not folder.is_dir():
         raise InputError(f"{str(folder)!r} is not a folder", "give a path inside a folder")

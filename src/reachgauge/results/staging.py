@@ -4,7 +4,7 @@
 folder of CSV tables and the HTML report. Before any work it checks all of
 them (names, existing files, folders that exist and can be written, the map
 field of the report). After the work it writes each one to a temporary file
-beside its target (:mod:`reachgauge.batch.lifecycle`) and, when every one is
+beside its target (:mod:`reachgauge.lifecycle`) and, when every one is
 complete, renames them into place in one step with signals held (a CSV folder
 that does not exist yet is built under a hidden name and renamed whole). If a
 rename fails, the targets already replaced are restored from hard links to
@@ -17,7 +17,7 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
-from reachgauge.batch import lifecycle
+from reachgauge import lifecycle
 from reachgauge.errors import InputError
 from reachgauge.results import geopackage as gp
 
