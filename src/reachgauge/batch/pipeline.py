@@ -1,16 +1,10 @@
-"""Run the steps for every reach: serially, in a local process pool, or on a
-Dask cluster.
-
-A reach is the unit of work: :func:`process_reach` gets one reach's geometry
-and parameters (all picklable), opens the raster itself, reads only the window
-around the reach, and returns plain tables. Nothing holds the whole raster.
-"""
+"""The batch from inputs to files: read the run-wide inputs, run every reach
+(:mod:`reachgauge.batch.dispatch`, each one a :mod:`reachgauge.batch.task`),
+summarise, and write the results."""
 
 from __future__ import annotations
 
-import os
 import time
-import traceback
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -19,8 +13,7 @@ import pandas as pd
 
 from reachgauge.transects import cutting
 from reachgauge.hydraulics import reach as hydraulics, roughness
-from reachgauge import lifecycle
-from reachgauge.batch import outcome
+from reachgauge.batch import dispatch, outcome
 from reachgauge.inputs import checks as input_checks, network as network_mod, raster as raster_mod
 from reachgauge.inputs import tables
 from reachgauge.config import RunConfig
@@ -44,21 +37,6 @@ class SharedInputs:
             obs = self.observations[self.observations["reach_id"] == rid].reset_index(drop=True)
         return hydraulics.ReachInputs(flows=dict(self.flows.get(rid, {})), observations=obs,
                                       cowan=self.cowan, class_table=self.class_table)
-
-
-@dataclass
-class ReachOutput:
-    """What one reach task returns: its tables (SI) and the geometry of its lines
-    (work CRS)."""
-
-    reach_id: str
-    result: hydraulics.ReachResult | None
-    reach_row: dict
-    transect_lines: list = field(default_factory=list)
-    thalweg_xy: np.ndarray | None = None
-    offsets: np.ndarray | None = None
-    error: str | None = None
-    seconds: float = 0.0
 
 
 def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:
@@ -117,89 +95,6 @@ def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:
     return shared
 
 
-def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
-                  neighbours=None, landcover=None) -> ReachOutput:
-    """The whole job for one reach. Never raises: a bad reach gets a status, an
-    unexpected error is caught and reported as ``failed``."""
-    t0 = time.perf_counter()
-    rid = str(reach.reach_id)
-    base = {"reach_id": rid, "name": reach.name or "", "status": reach.status,
-            "message": reach.message, "orientation": reach.orientation,
-            "reach_length": reach.length_m, "transects": 0, "transects_ok": 0}
-    if reach.status != "ok":
-        return ReachOutput(rid, None, base)
-    try:
-        with raster_mod.read_failures() as unreadable, raster_mod.open_raster(raster) as ds:
-            rs = cutting.cut_reach(ds, raster, reach, cutting.CuttingParams.from_config(cfg),
-                                   neighbours)
-        if unreadable:   # a damaged file, not a bug: the reach says where
-            base.update(status="bad-input", message=unreadable[0], transects=len(rs.chainage))
-            return ReachOutput(rid, None, base, seconds=time.perf_counter() - t0)
-        if rs.status != "ok" or len(rs.chainage) == 0:
-            base.update(status=rs.status, message=rs.message, transects=len(rs.chainage))
-            # cut_reach turns its own unexpected errors into status "failed": still a bug
-            return ReachOutput(rid, None, base, error=rs.message if rs.status == "failed" else None,
-                               seconds=time.perf_counter() - t0)
-        if landcover is not None and inputs.class_table:
-            from reachgauge.inputs.landcover import classes_at
-
-            inputs.classes = classes_at(landcover, rs.sample_points(), raster.work_crs)
-        res = hydraulics.analyse_reach(rs, hydraulics.ReachParams.from_config(cfg), inputs)
-        return ReachOutput(rid, res, res.reach, transect_lines=list(rs.transects),
-                           thalweg_xy=np.asarray(rs.thalweg_xy), offsets=np.asarray(rs.offsets),
-                           seconds=time.perf_counter() - t0)
-    except InputError as exc:
-        base.update(status="bad-input", message=str(exc))
-        return ReachOutput(rid, None, base, seconds=time.perf_counter() - t0)
-    except Exception as exc:  # a bug: keep the batch going, report it
-        base.update(status="failed", message=f"{type(exc).__name__}: {exc}")
-        return ReachOutput(rid, None, base, error=traceback.format_exc(),
-                           seconds=time.perf_counter() - t0)
-
-
-def iterate(cfg: RunConfig, net, shared: SharedInputs):
-    """Yield a :class:`ReachOutput` per reach as each finishes, on the executor
-    the config asks for: ``scheduler`` (Dask), ``jobs`` > 1 or 0 (process pool),
-    else serial."""
-    # other streams within reach of a transect, for the crossing checks
-    args = [(net.raster, r, cfg, shared.for_reach(r),
-             net.neighbours(r, 2.0 * max(cfg.half_width, r.half_width_m or 0.0)), cfg.landcover)
-            for r in net.reaches]
-    if cfg.scheduler:
-        try:
-            from dask.distributed import Client, as_completed
-        except ImportError:
-            raise InputError("--scheduler needs Dask distributed",
-                             "install reachgauge with the 'dask' extra: pip install 'reachgauge[dask]'"
-                             ) from None
-        try:
-            client = Client(cfg.scheduler, timeout="10s")
-        except (OSError, TimeoutError) as exc:
-            raise InputError(f"cannot reach the Dask scheduler at {cfg.scheduler} ({exc})",
-                             "check the address (tcp://host:port) and that the scheduler runs"
-                             ) from None
-        with client:
-            futures = [client.submit(process_reach, *a, pure=False) for a in args]
-            for fut in as_completed(futures):
-                yield fut.result()
-        return
-    jobs = cfg.jobs if cfg.jobs > 0 else (os.cpu_count() or 1)
-    if jobs > 1 and len(args) > 1:
-        import multiprocessing
-        from concurrent.futures import ProcessPoolExecutor, as_completed as done
-
-        ctx = multiprocessing.get_context("spawn")  # GDAL state must not be forked
-        with ProcessPoolExecutor(max_workers=min(jobs, len(args)), mp_context=ctx,
-                                 initializer=lifecycle.worker_started,
-                                 initargs=(os.getpid(),)) as pool:
-            futures = [pool.submit(process_reach, *a) for a in args]
-            for fut in done(futures):
-                yield fut.result()
-        return
-    for a in args:
-        yield process_reach(*a)
-
-
 def cut_all(cfg: RunConfig):
     """Load the network and cut every reach serially: per reach, the transects,
     their sampled sections, thalweg and slopes. Returns ``(network, [ReachSections])``."""
@@ -233,7 +128,7 @@ def compute(cfg: RunConfig, progress=None) -> RunResult:
     shared = read_shared_inputs(cfg, net)
     outputs = []
     total = len(net.reaches)
-    for out in iterate(cfg, net, shared):
+    for out in dispatch.iterate(cfg, net, shared):
         outputs.append(out)
         if progress:
             progress(out, len(outputs), total)
