@@ -1,11 +1,12 @@
-"""No trace of a killed run: SIGINT, SIGTERM and SIGKILL sent to the console
+"""No damage from a killed run: SIGINT, SIGTERM and SIGKILL sent to the console
 script at four points of a real run (start-up, computing with two worker
 processes, writing the GeoPackage, writing the report), with and without an
 earlier result at --out.
 
 After each: the earlier result is byte for byte intact (a run stopped before it
 put its results in place must not touch them); SIGINT and SIGTERM give one true
-``error:`` line, exit 128 + the signal number and leave no temporary file;
+``error:`` line, exit 128 + the signal number and leave no temporary file, only
+the checkpoint of the reaches finished (which the line names, with --resume);
 SIGKILL leaves files that the next run removes; no worker process outlives its
 parent. The points are reached with the test hook of
 reachgauge.lifecycle (REACHGAUGE_TEST_HOLD), so each signal lands where
@@ -144,13 +145,18 @@ def test_a_signal_leaves_no_trace(inputs, tmp_path, sig, point, earlier):
     assert {k: v for k, v in digest(folder).items() if k in before} == before
     if earlier:
         assert {k: v for k, v in digest(folder / "csv").items() if k in before_csv} == before_csv
+    kept = folder / "r.gpkg.checkpoint"
+    kept_reaches = list(kept.glob("reach-*.pkl")) if kept.exists() else []
+    if point in ("computing", "writing", "report"):
+        assert kept_reaches       # the hold comes after the first reach is kept
     if sig == "SIGKILL":
         assert p.returncode == -signal.SIGKILL
         # the next run removes what the killed one left, and completes
-        r = subprocess.run(command(inputs["dem"], inputs["streams"], folder), env=environment(),
-                           capture_output=True, text=True)
+        resume = ["--resume"] if kept_reaches else []
+        r = subprocess.run(command(inputs["dem"], inputs["streams"], folder, *resume),
+                           env=environment(), capture_output=True, text=True)
         assert r.returncode == 0, r.stderr
-        assert ours(folder) == []
+        assert ours(folder) == [] and not kept.exists()
         assert {"r.gpkg", "r.html"} <= set(digest(folder))
         return
     number = getattr(signal, sig)
@@ -161,5 +167,7 @@ def test_a_signal_leaves_no_trace(inputs, tmp_path, sig, point, earlier):
     assert "no result was written" in lines[0] or "nothing was written" in lines[0]
     if earlier and point != "start-up":
         assert "r.gpkg" in lines[0] and "unchanged" in lines[0]
+    assert ("--resume" in lines[0]) == bool(kept_reaches)
     assert ours(folder) == []                                  # no temporary file left
-    assert set(os.listdir(folder)) == set(before) | ({"csv"} if earlier else set())
+    assert set(os.listdir(folder)) == (set(before) | ({"csv"} if earlier else set())
+                                       | ({kept.name} if kept_reaches else set()))

@@ -133,7 +133,16 @@ def test_a_full_disk_while_writing_is_one_error_line_and_keeps_the_earlier_resul
     line = one_error(r.stderr)
     assert "cannot write" in line and "nothing was written" in line
     assert out.read_bytes() == b"earlier result"
-    assert sorted(os.listdir(tmp_path)) == ["r.gpkg"]   # no temporary file, no CSV folder
+    # no temporary file, no CSV folder; the finished reaches are kept for --resume
+    assert sorted(os.listdir(tmp_path)) == ["r.gpkg", "r.gpkg.checkpoint"]
+    assert "--resume" in line
+    # with room on the disk again, the same command with --resume completes
+    r = subprocess.run([str(EXE)] + run_args(inputs, out, "--overwrite", "--quiet", "--csv",
+                                             tmp_path / "tables", "--resume"),
+                       env=_env(), capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr
+    assert sorted(os.listdir(tmp_path)) == ["r.gpkg", "tables"]
+    assert out.read_bytes()[:16] == b"SQLite format 3\x00"
 
 
 def test_a_full_disk_under_the_section_rating(tmp_path):
@@ -224,4 +233,5 @@ def test_a_failed_commit_restores_every_earlier_file(inputs, tmp_path, monkeypat
     assert code == 2 and calls["n"] == 1
     assert "cannot write" in one_error(capsys.readouterr()[1])
     assert {p: hashlib.sha256(p.read_bytes()).hexdigest() for p in (out, html)} == before
-    assert sorted(os.listdir(tmp_path)) == ["r.gpkg", "r.html"]
+    # the finished reaches stay for --resume; nothing else is left
+    assert sorted(os.listdir(tmp_path)) == ["r.gpkg", "r.gpkg.checkpoint", "r.html"]

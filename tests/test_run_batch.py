@@ -129,7 +129,9 @@ def test_a_failed_write_leaves_no_file(valley, tmp_path, monkeypatch):
     code = run(base_args(valley, out))
     assert code == 130
     assert not out.exists()
-    assert list(tmp_path.iterdir()) == []   # no temporary file left behind
+    # no temporary file left behind; the finished reaches are kept for --resume
+    assert [p.name for p in tmp_path.iterdir()] == ["r.gpkg.checkpoint"]
+    assert not list((tmp_path / "r.gpkg.checkpoint").glob(".reachgauge-*"))
 
 
 @pytest.mark.parametrize("change,msg", [

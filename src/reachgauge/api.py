@@ -37,14 +37,16 @@ def require_inputs(cfg: RunConfig) -> None:
 
 
 def run(out, *, config=None, overwrite: bool = False, csv=None, report=None,
-        colour_by: str = "discharge", progress=None, **values):
+        colour_by: str = "discharge", progress=None, resume: bool = False, **values):
     """Run the whole batch and write the GeoPackage ``out`` (atomically), optionally
     CSV copies of its tables in the folder ``csv`` and the HTML ``report``.
 
     ``config``: a TOML file of settings; ``values``: settings as keywords (e.g.
     ``dem="terrain.tif", streams="streams.gpkg", spacing=10.0, jobs=2``), which win
     over the file. ``progress(output, done, total)`` is called as each reach
-    finishes. Returns the run's :class:`~reachgauge.batch.pipeline.RunSummary`
+    finishes. Every finished reach is kept in ``<out>.checkpoint`` until the result
+    is in place; ``resume=True`` continues an interrupted run from there (same
+    settings and inputs, or it is refused). Returns the run's :class:`~reachgauge.batch.summary.RunSummary`
     (``.lines()`` prints like the command line). Raises
     :class:`~reachgauge.errors.InputError` for bad input, before any work.
     """
@@ -53,4 +55,4 @@ def run(out, *, config=None, overwrite: bool = False, csv=None, report=None,
     cfg = configure(config, **values)
     require_inputs(cfg)
     return run_to_file(cfg, out, overwrite=overwrite, csv_dir=csv, report=report,
-                       colour_by=colour_by, progress=progress)
+                       colour_by=colour_by, progress=progress, resume=resume)

@@ -75,6 +75,7 @@ class _State:
     written: list = []      # targets put in place by this process
     kept: list = []         # earlier files at the targets, left as they were
     writing_to: list = []   # targets of the write in progress
+    resumable: str | None = None   # what an interrupted run kept for --resume
 
 
 STATE = _State()
@@ -91,7 +92,7 @@ def _handler(signum, frame):
 
 def install_signal_handlers() -> None:
     """SIGINT, SIGTERM and SIGHUP end the run through :class:`Interrupted`."""
-    STATE.stopping, STATE.pending = False, None
+    STATE.stopping, STATE.pending, STATE.resumable = False, None, None
     for s in SIGNALS:
         signal.signal(s, _handler)
     # multiprocessing's resource tracker outlives a killed parent by a moment and
@@ -126,6 +127,8 @@ def interruption_message(exc: Interrupted | KeyboardInterrupt) -> str:
     text = f"interrupted ({name}); no result was written"
     if kept:
         text += f" and the earlier {', '.join(kept)} {'is' if len(kept) == 1 else 'are'} unchanged"
+    if STATE.resumable:
+        text += f"; {STATE.resumable}"
     return text
 
 
@@ -331,6 +334,28 @@ def clean_stale(folder) -> list[Path]:
         elif not _alive(int(token.split("-")[0])):
             removed += _remove_all(folder, files)
     return removed
+
+
+def in_use(folder) -> bool:
+    """Whether a live run other than this one holds its lock in ``folder``."""
+    import fcntl
+
+    folder = Path(folder)
+    for lock in folder.glob(f"{PREFIX}*.lock"):
+        if lock.name == f"{PREFIX}{TOKEN}.lock":
+            continue
+        try:
+            fd = os.open(lock, os.O_RDWR)
+        except OSError:
+            continue
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            fcntl.flock(fd, fcntl.LOCK_UN)
+        except OSError:
+            return True
+        finally:
+            os.close(fd)
+    return False
 
 
 def _remove_all(folder, names) -> list[Path]:

@@ -15,14 +15,14 @@ if TYPE_CHECKING:
     from reachgauge.config import RunConfig
 
 
-def iterate(cfg: RunConfig, net, shared: SharedInputs):
+def iterate(cfg: RunConfig, net, shared: SharedInputs, reaches=None, note=None):
     """Yield a :class:`ReachOutput` per reach as each finishes, on the executor
     the config asks for: ``scheduler`` (Dask), ``jobs`` > 1 or 0 (process pool),
     else serial."""
     # other streams within reach of a transect, for the crossing checks
     args = [(net.raster, r, cfg, shared.for_reach(r),
              net.neighbours(r, 2.0 * max(cfg.half_width, r.half_width_m or 0.0)), cfg.landcover)
-            for r in net.reaches]
+            for r in (net.reaches if reaches is None else reaches)]
     if cfg.scheduler:
         try:
             from dask.distributed import Client, as_completed

@@ -69,12 +69,13 @@ def check_network(net, cfg) -> None:
     raise _verdict(statuses, net, cfg, [r.message for r in net.reaches])
 
 
-def check_outputs(outputs, net, cfg) -> None:
-    """Raise :class:`InputError` when no reach gave figures and none failed on a bug."""
-    statuses = Counter(o.reach_row.get("status", "") for o in outputs)
+def check_outputs(rows, net, cfg) -> None:
+    """Raise :class:`InputError` when no reach gave figures and none failed on a bug
+    (``rows``: every reach's reach row)."""
+    statuses = Counter(r.get("status", "") for r in rows)
     # a reach whose terrain supports no bankfull figure was still computed: its
     # rating curves and the reason are results, not an input failure
-    if (not outputs or statuses.get("ok") or statuses.get("bankfull-unsupported")
+    if (not rows or statuses.get("ok") or statuses.get("bankfull-unsupported")
             or statuses.get("failed")):
         return
-    raise _verdict(statuses, net, cfg, [o.reach_row.get("message", "") for o in outputs])
+    raise _verdict(statuses, net, cfg, [r.get("message", "") for r in rows])

@@ -111,123 +111,142 @@ def cut_all(cfg: RunConfig):
 
 @dataclass
 class RunResult:
+    """A computed run: the network and, in reach order, the header of every
+    reach's part (its reach row and counts, see :func:`reachgauge.batch.summary.tally`)."""
+
     network: object
-    outputs: list
+    headers: list
     elapsed: float
     warnings: list
+    notes: list = field(default_factory=list)
+    timings: dict = field(default_factory=dict)
 
 
-def compute(cfg: RunConfig, progress=None) -> RunResult:
-    """Load the network, run every reach, and return the outputs (SI, work CRS).
+class KeptInMemory:
+    """A sink for :func:`compute` that keeps every reach's layers in memory
+    (small runs and tests; a file run streams them to a
+    :class:`~reachgauge.batch.checkpoint.Checkpoint`)."""
 
-    ``progress(output, done, total)`` is called after each reach.
+    def __init__(self):
+        self.parts: dict[int, dict] = {}
+
+    def add(self, index: int, header: dict, layers: dict) -> None:
+        self.parts[index] = layers
+
+    def layers(self, index: int) -> dict:
+        return self.parts[index]
+
+
+def estimated_transects(reach, cfg: RunConfig) -> int:
+    """Transects a reach will have (its length over the spacing), for progress."""
+    if reach.status != "ok":
+        return 0
+    return int((reach.length_m or 0.0) // cfg.spacing) + 1
+
+
+def compute(cfg: RunConfig, net=None, shared=None, sink=None, done=None,
+            progress=None) -> RunResult:
+    """Run every reach not in ``done`` ({index: header} of reaches already kept)
+    and hand each one's layers (final form, :mod:`reachgauge.results.layers`) to
+    ``sink.add(index, header, layers)`` as it finishes.
+
+    ``progress(output, done, total)`` is called after each reach; a progress
+    object with a ``start(reaches, transects, reaches_done, transects_done)``
+    method hears the estimated size first.
     """
+    from reachgauge.batch.summary import tally
+    from reachgauge.results.layers import reach_layers
+
     t0 = time.perf_counter()
-    net = network_mod.load_network(cfg)
-    outcome.check_network(net, cfg)      # every reach unusable for one cause: exit 2 now
-    shared = read_shared_inputs(cfg, net)
-    outputs = []
-    total = len(net.reaches)
-    for out in dispatch.iterate(cfg, net, shared):
-        outputs.append(out)
-        if progress:
-            progress(out, len(outputs), total)
+    if net is None:
+        net = network_mod.load_network(cfg)
+        outcome.check_network(net, cfg)      # every reach unusable for one cause: exit 2 now
+    shared = shared if shared is not None else read_shared_inputs(cfg, net)
+    sink = sink if sink is not None else KeptInMemory()
+    headers = dict(done or {})
     order = {str(r.reach_id): i for i, r in enumerate(net.reaches)}
-    outputs.sort(key=lambda o: order.get(o.reach_id, 0))
-    outcome.check_outputs(outputs, net, cfg)   # no figures anywhere, for input causes: exit 2
-    return RunResult(net, outputs, time.perf_counter() - t0, list(net.warnings))
+    todo = [r for i, r in enumerate(net.reaches) if i not in headers]
+    total = len(net.reaches)
+    start = getattr(progress, "start", None)
+    if start:
+        start(total, sum(estimated_transects(r, cfg) for r in net.reaches), len(headers),
+              sum(h["tally"]["transects"] for h in headers.values()))
+    notes: list[str] = []
+    timings = {"task": 0.0, "read": 0.0, "keep": 0.0}
+    work, source = net.work_crs, net.source_crs
+    for out in dispatch.iterate(cfg, net, shared, reaches=todo, note=notes.append):
+        t1 = time.perf_counter()
+        i = order[out.reach_id]
+        header = {**tally(out), "index": i}
+        sink.add(i, header, reach_layers(out, net.reaches[i].geometry, cfg, work, source))
+        headers[i] = header
+        timings["keep"] += time.perf_counter() - t1
+        timings["task"] += out.seconds
+        timings["read"] += getattr(out, "read_seconds", 0.0)
+        if progress:
+            progress(out, len(headers), total)
+    ordered = [headers[i] for i in sorted(headers)]
+    outcome.check_outputs([h["reach_row"] for h in ordered], net, cfg)
+    return RunResult(net, ordered, time.perf_counter() - t0, list(net.warnings), notes, timings)
 
 
-@dataclass
-class RunSummary:
-    """What the end-of-run summary prints."""
+def identity(cfg: RunConfig, net) -> dict:
+    """What a checkpoint must match to be resumed: the version, the settings that
+    decide the result, the inputs' fingerprints and the reaches."""
+    import hashlib
 
-    reaches: int
-    reaches_ok: int
-    transects: int
-    transects_ok: int
-    flagged: int
-    out_of_bank_transects: int
-    flag_counts: dict
-    statuses: dict
-    out_of_bank: list
-    failed: list
-    out: Path | None
-    report: Path | None
-    elapsed: float
-    warnings: list
-    trusted: int = 0                                     # transects with a trusted pick
-    withheld: dict = field(default_factory=dict)         # "do not use" flag -> transects
+    from reachgauge import __version__
+    from reachgauge.results import run_info
 
-    def lines(self) -> list[str]:
-        out = [f"reaches:    {self.reaches_ok} of {self.reaches} processed"
-               + (f" ({', '.join(f'{v} {k}' for k, v in self.statuses.items())})"
-                  if self.statuses else ""),
-               f"transects:  {self.transects_ok} of {self.transects} with figures, "
-               f"{self.trusted} with a trusted bankfull pick, "
-               f"{self.flagged} flagged for a look, {self.out_of_bank_transects} where a design "
-               "flow leaves the channel"]
-        if self.flag_counts:
-            top = sorted(self.flag_counts.items(), key=lambda kv: -kv[1])[:6]
-            out.append("flags:      " + ", ".join(f"{k} {v}" for k, v in top))
-        if self.withheld:
-            out.append("no bankfull figure (do not use): " + ", ".join(
-                f"{k} {v}" for k, v in sorted(self.withheld.items(), key=lambda kv: -kv[1])))
-        if self.out_of_bank:
-            out.append("out of bank: " + "; ".join(self.out_of_bank))
-        if self.failed:
-            out.append("internal errors on: " + ", ".join(self.failed)
-                       + " (please report; run with --verbose for details)")
-        for w in self.warnings:
-            out.append(f"warning:    {w}")
-        if self.out:
-            out.append(f"result:     {self.out}")
-        if self.report:
-            out.append(f"report:     {self.report}")
-        out.append(f"time:       {self.elapsed:.1f} s")
-        return out
-
-
-def summarise(run: RunResult, out=None, report=None) -> RunSummary:
-    from collections import Counter
-
-    from reachgauge.flags import has_quality_flag, severity
-    from reachgauge.hydraulics.bankfull import TRUSTED_CONFIDENCE
-
-    statuses = Counter(o.reach_row.get("status", "") for o in run.outputs)
-    flag_counts: Counter = Counter()
-    transects = transects_ok = flagged = oob_t = trusted = 0
-    oob = []
-    for o in run.outputs:
-        if o.result is None:
-            transects += int(o.reach_row.get("transects", 0) or 0)
-            continue
-        tr = o.result.transects
-        transects += len(tr)
-        transects_ok += int((tr["status"] == "ok").sum())
-        trusted += int(tr["confidence"].isin(TRUSTED_CONFIDENCE).sum())
-        flagged += int(sum(has_quality_flag(f) for f in tr["flags"]))
-        oob_t += int((tr["flows_out"] != "").sum())
-        for f in tr["flags"]:
-            flag_counts.update(x for x in f.split(";") if x)
-        if o.reach_row.get("flows_out"):
-            oob.append(f"{o.reach_id} ({o.reach_row['flows_out'].replace(';', ', ')})")
-    ok = statuses.pop("ok", 0)
-    withheld = {k: v for k, v in flag_counts.items() if severity(k) == "do not use"}
-    return RunSummary(len(run.outputs), ok, transects, transects_ok, flagged, oob_t, dict(flag_counts),
-                      dict(statuses), oob, [o.reach_id for o in run.outputs if o.error],
-                      out, report, run.elapsed, run.warnings, trusted, withheld)
+    ids = "\n".join(str(r.reach_id) for r in net.reaches).encode()
+    return {"version": __version__, "settings": run_info.settings(cfg),
+            "inputs": run_info.inputs(cfg),
+            "reaches": [len(net.reaches), hashlib.sha256(ids).hexdigest()]}
 
 
 def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, report=None,
-                colour_by: str = "discharge", progress=None) -> RunSummary:
-    """The whole batch: compute every reach, write the GeoPackage (atomically),
-    optionally CSV copies of the tables and the HTML report."""
+                colour_by: str = "discharge", progress=None, resume: bool = False):
+    """The whole batch: compute every reach, keeping each one's rows in the
+    checkpoint beside ``out`` as it finishes (:mod:`reachgauge.batch.checkpoint`),
+    then assemble the GeoPackage (atomically), optionally CSV copies of the tables
+    and the HTML report. ``resume``: continue the interrupted run whose checkpoint
+    is there. Returns the :class:`~reachgauge.batch.summary.RunSummary`."""
+    from reachgauge import lifecycle
+    from reachgauge.batch.checkpoint import Checkpoint
+    from reachgauge.batch.summary import summarise
+    from reachgauge.errors import OutputError
     from reachgauge.results.staging import RunOutputs
 
+    t0 = time.perf_counter()
     # every target checked before the work; all written together after it
     with RunOutputs(out, csv_dir=csv_dir, report=report, overwrite=overwrite,
                     colour_by=colour_by) as targets:
-        run = compute(cfg, progress)
-        targets.write(run, cfg)
+        net = network_mod.load_network(cfg)
+        outcome.check_network(net, cfg)      # every reach unusable for one cause: exit 2 now
+        shared = read_shared_inputs(cfg, net)
+        store = Checkpoint(out, identity(cfg, net))
+        done = store.open(resume)
+        kept = len(done)
+        try:
+            run = compute(cfg, net, shared, store, done, progress)
+            kept = len(run.headers)
+            t1 = time.perf_counter()
+            targets.write(run, cfg, store)
+            run.timings["write"] = time.perf_counter() - t1
+        except BaseException as exc:
+            kept = len(store.headers()) if store.folder.exists() else 0
+            if kept == 0 or (isinstance(exc, InputError) and not isinstance(exc, OutputError)):
+                store.remove()        # nothing to resume, or inputs that must change first
+            else:
+                store.close()
+                lifecycle.STATE.resumable = (f"{kept} of {len(net.reaches)} reaches are kept in "
+                                             f"{store.folder}: add --resume to the same command "
+                                             "to continue")
+                if isinstance(exc, OutputError):
+                    raise OutputError(exc.problem, f"{exc.fix}; {lifecycle.STATE.resumable}"
+                                      ) from None
+            raise
+        store.remove()
+    run.timings["wall"] = time.perf_counter() - t0
+    run.elapsed = run.timings["wall"]
     return summarise(run, Path(out), None if report is None else Path(report))

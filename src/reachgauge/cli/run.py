@@ -27,6 +27,9 @@ command-line values win. Lengths on the command line are in metres, or in feet w
 --units us. Files state their own units, whatever --units says: units = "si" or "us"
 in the TOML file, a first line '# units: si' or '# units: us' in a CSV file.
 
+A run keeps every finished reach in RESULT.gpkg.checkpoint beside --out until the
+result is in place; after an interruption, the same command with --resume continues.
+
 Exit codes: 0 done; 2 bad input or an output that cannot be written (one error line,
 nothing written); 1 an internal error; 130/143/129 stopped by SIGINT/SIGTERM/SIGHUP.
 """
@@ -44,6 +47,10 @@ def add(sub):
     out.add_argument("--out", required=True, type=Path, metavar="RESULT.gpkg",
                      help="GeoPackage to write")
     out.add_argument("--overwrite", action="store_true", help="replace existing output files")
+    out.add_argument("--resume", action="store_true",
+                     help="continue an interrupted run into the same --out from its checkpoint "
+                          "(RESULT.gpkg.checkpoint): finished reaches are kept, not recomputed; "
+                          "refused if the settings or inputs changed")
     out.add_argument("--csv", type=Path, metavar="DIR", help="also write every table as CSV in DIR")
     out.add_argument("--report", type=Path, metavar="REPORT.html", help="also write the HTML report")
     out.add_argument("--colour-by", default="discharge", metavar="FIELD",
@@ -62,6 +69,7 @@ def run(args) -> int:
     progress = Progress(args.quiet, args.verbose)
     summary = api.run(args.out, config=args.config, overwrite=args.overwrite, csv=args.csv,
                       report=args.report, colour_by=args.colour_by, progress=progress,
+                      resume=args.resume,
                       **setting_values(args))
     if not args.quiet:
         print("\n".join(summary.lines()))

@@ -10,14 +10,12 @@ from __future__ import annotations
 import errno
 import os
 import shutil
-import time
 from pathlib import Path
 
 import pandas as pd
 
 from reachgauge import lifecycle
 from reachgauge.errors import InputError, OutputError
-from reachgauge.manning import FOOT as FOOT_
 
 
 def check_target(path, overwrite: bool) -> Path:
@@ -184,139 +182,70 @@ def csv_frame(frame) -> pd.DataFrame:
     return df
 
 
-# --------------------------------------------------------- assembling layers
-def build_layers(run, cfg) -> dict:
-    """The result layers of a run (see :mod:`reachgauge.schema`), in the run's
-    units and the terrain raster's own CRS."""
-    import geopandas as gpd
-    import shapely
+# ----------------------------------------------------- writing as reaches finish
+class LayerWriter:
+    """Append result rows to a GeoPackage (and CSV copies) in batches.
 
-    from reachgauge.results import schema
+    Rows come a reach at a time (:func:`reachgauge.results.layers.reach_layers`)
+    in the order the file keeps; they are held until ``batch_rows`` rows are
+    waiting, then every waiting layer is appended (pyogrio's Arrow path: a batch
+    at a time, about 2.5x faster than row by row). Memory is bounded by one
+    batch, whatever the size of the run. ``csv``: {layer: path} of CSV copies,
+    appended alongside.
+    """
 
-    net = run.network
-    work, source = net.work_crs, net.source_crs
-    tr_frames, pt_frames, reach_rows, reach_geoms = [], [], [], []
-    rating, stages, design, profile, cal, samples = [], [], [], [], [], []
-    geom_by_id = {str(r.reach_id): r.geometry for r in net.reaches}
-    for out in run.outputs:
-        reach_rows.append(out.reach_row)
-        reach_geoms.append(geom_by_id.get(out.reach_id))
-        res = out.result
-        if res is None:
-            continue
-        tr = res.transects.copy()
-        tr_frames.append(gpd.GeoDataFrame(tr, geometry=list(out.transect_lines), crs=work))
-        xy = out.thalweg_xy
-        pts = shapely.points(xy[:, 0], xy[:, 1])
-        pt_frames.append(gpd.GeoDataFrame(
-            tr[["reach_id", "station", "chainage", "thalweg_z", "thalweg_shift", "status"]],
-            geometry=pts, crs=work))
-        rating.append(res.rating)
-        samples.append(_sample_sections(out))
-        stages.append(res.stages)
-        design.append(res.design)
-        profile.append(res.profile)
-        cal.append(res.calibration)
+    def __init__(self, path, crs, units: str, csv: dict | None = None,
+                 batch_rows: int = 200_000):
+        self.path, self.crs, self.units = Path(path), crs, units
+        self.csv = dict(csv or {})
+        self.batch_rows = batch_rows
+        self.pending: dict[str, list] = {}
+        self.waiting = 0
+        self.created: set[str] = set()
+        self.rows: dict[str, int] = {}
 
-    def cat(frames, fields):
-        frames = [f for f in frames if f is not None and len(f)]
-        df = pd.concat(frames, ignore_index=True) if frames else schema.empty_frame(fields)
-        return schema.column_order(schema.to_units(df, fields, cfg.units), fields)
+    def add(self, layers: dict) -> None:
+        for name, frame in layers.items():
+            self.pending.setdefault(name, []).append(frame)
+            self.waiting += len(frame)
+        if self.waiting >= self.batch_rows:
+            self.flush()
 
-    def geo(frames, fields):
-        frames = [f for f in frames if len(f)]
-        if frames:
-            g = gpd.GeoDataFrame(pd.concat(frames, ignore_index=True), crs=work)
-        else:
-            g = gpd.GeoDataFrame(schema.empty_frame(fields), geometry=gpd.GeoSeries([], crs=work))
-        g = g.to_crs(source) if source != work else g
-        df = schema.column_order(schema.to_units(pd.DataFrame(g), fields, cfg.units), fields)
-        return gpd.GeoDataFrame(df, geometry="geometry", crs=source)
+    def flush(self) -> None:
+        from reachgauge.results.layers import LAYERS
 
-    reaches = gpd.GeoDataFrame(pd.DataFrame(reach_rows), geometry=reach_geoms, crs=work)
-    if source != work:
-        reaches = reaches.to_crs(source)
-    reaches = gpd.GeoDataFrame(
-        schema.column_order(schema.to_units(pd.DataFrame(reaches), schema.REACH_FIELDS, cfg.units),
-                            schema.REACH_FIELDS), geometry="geometry", crs=source)
-    layers = {
-        "transects": geo(tr_frames, schema.TRANSECT_FIELDS),
-        "reaches": reaches,
-        "thalweg_points": geo(pt_frames, schema.TRANSECT_FIELDS),
-        "rating_curves": cat(rating, schema.RATING_FIELDS),
-        "stage_figures": cat(stages, schema.STAGE_FIELDS),
-        "design_checks": cat(design, schema.DESIGN_FIELDS),
-        "profile": cat(profile, schema.PROFILE_FIELDS),
-        "calibration": cat(cal, schema.CALIBRATION_FIELDS),
-        "sample_sections": cat(samples, schema.SAMPLE_SECTION_FIELDS),
-    }
-    layers["run_info"] = run_info(run, cfg)
-    return layers
+        for name in LAYERS:
+            frames = self.pending.pop(name, None)
+            if frames:
+                self._write(name, pd.concat(frames, ignore_index=True) if len(frames) > 1
+                            else frames[0])
+        self.waiting = 0
 
+    def close(self, extra: dict) -> None:
+        """Write what waits, every layer that got no row (empty, with its fields),
+        and the plain tables of ``extra`` ({name: DataFrame}, e.g. run_info)."""
+        from reachgauge.results.layers import LAYERS, empty
 
-def _sample_sections(out, count: int = 4) -> pd.DataFrame:
-    """Ground points of a few evenly spaced valid transects of a reach, so the
-    report can draw sections from the GeoPackage alone."""
-    import numpy as np
+        self.flush()
+        for name in LAYERS:
+            if name not in self.created:
+                self._write(name, empty(name, self.units, self.crs))
+        for name, frame in extra.items():
+            self._write(name, frame)
 
-    res = out.result
-    ok = np.nonzero((res.transects["status"] == "ok").to_numpy())[0]
-    if ok.size == 0:
-        return pd.DataFrame()
-    pick = np.unique(ok[np.linspace(0, ok.size - 1, min(count, ok.size)).round().astype(int)])
-    frames = []
-    for i in pick:
-        x, z = res.offsets[i], res.sections_z[i]
-        keep = np.isfinite(z)
-        frames.append(pd.DataFrame({"reach_id": out.reach_id, "station": int(i),
-                                    "offset": x[keep], "elevation": z[keep]}))
-    return pd.concat(frames, ignore_index=True)
+    def _write(self, name: str, frame) -> None:
+        import geopandas as gpd
+        import pyogrio
 
-
-def run_info(run, cfg) -> pd.DataFrame:
-    """Key–value table: parameters, units, versions and input fingerprints."""
-    import dataclasses
-    import json
-    import platform
-
-    import geopandas
-    import numpy
-    import pyproj
-    import rasterio
-    import scipy
-    import shapely
-
-    from reachgauge import __version__
-    from reachgauge.results import schema
-    from reachgauge.config import PATH_FIELDS
-    from reachgauge.inputs.raster import describe_file
-    from reachgauge.notices import CAUTION_LINE
-
-    rows = [("reachgauge_version", __version__), ("created_utc", time.strftime("%Y-%m-%dT%H:%M:%SZ",
-                                                                           time.gmtime())),
-            ("units", cfg.units),
-            ("unit_labels", json.dumps(schema.UNIT_LABELS[cfg.units], ensure_ascii=False)),
-            ("vertical_units", getattr(run.network.raster, "z_unit", "m")),
-            ("vertical_units_source", getattr(run.network.raster, "z_source", "")),
-            ("crs", run.network.source_crs.to_string()),
-            ("work_crs", run.network.work_crs.to_string()),
-            ("elapsed_s", f"{run.elapsed:.2f}"), ("caution", CAUTION_LINE)]
-    for f in dataclasses.fields(cfg):
-        v = getattr(cfg, f.name)
-        if f.metadata.get("length") and v is not None and cfg.units == "us":
-            v = tuple(x / FOOT_ for x in v) if isinstance(v, tuple) else v / FOOT_
-        rows.append((f"param.{f.name}", json.dumps(v if not isinstance(v, Path) else str(v),
-                                                   default=str)))
-    for name, mod in (("python", None), ("numpy", numpy), ("scipy", scipy), ("pandas", pd),
-                      ("shapely", shapely), ("pyproj", pyproj), ("rasterio", rasterio),
-                      ("geopandas", geopandas)):
-        rows.append((f"version.{name}", platform.python_version() if mod is None
-                     else mod.__version__))
-    rows.append(("version.gdal", rasterio.__gdal_version__))
-    for key in PATH_FIELDS:
-        p = getattr(cfg, key)
-        if p:
-            rows.append((f"input.{key}", json.dumps(describe_file(p))))
-    for w in run.warnings:
-        rows.append(("warning", w))
-    return pd.DataFrame(rows, columns=["key", "value"])
+        if isinstance(frame, gpd.GeoDataFrame) and frame.crs is None:
+            frame = frame.set_crs(self.crs)
+        first = name not in self.created
+        pyogrio.write_dataframe(_plain_types(frame), self.path, layer=name, driver="GPKG",
+                                use_arrow=True, append=not first)
+        if name in self.csv:
+            csv_frame(frame).to_csv(self.csv[name], mode="w" if first else "a", header=first,
+                                    index=False, float_format="%.6g")
+        if not self.created:
+            lifecycle.checkpoint("writing")
+        self.created.add(name)
+        self.rows[name] = self.rows.get(name, 0) + len(frame)

@@ -168,10 +168,13 @@ DESIGN_FIELDS = {
 
 PROFILE_FIELDS = {
     "reach_id": ("text", "reach identifier"),
+    "station": ("count", "transect number along the reach, 0 at the upstream end"),
     "chainage": ("length", "distance from the reach's upstream end"),
     "z_raw": ("length", "thalweg elevation as sampled"),
     "z_carved": ("length", "thalweg elevation after conditioning: humps breached, pits filled (least change)"),
     "z_used": ("length", "elevation the slope was fitted to"),
+    "carved": ("flag", "conditioning moved the thalweg here (and the slope uses the moved level)"),
+    "slope": ("none", "slope used at this station (dimensionless)"),
 }
 
 CALIBRATION_FIELDS = {

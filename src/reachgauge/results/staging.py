@@ -15,6 +15,7 @@ temporary file or folder.
 from __future__ import annotations
 
 import os
+from contextlib import contextmanager
 from pathlib import Path
 
 from reachgauge import lifecycle
@@ -124,17 +125,22 @@ class RunOutputs:
         self._staged[target] = tmp
         return tmp
 
-    def write(self, run, cfg) -> None:
-        """Write every output of ``run`` to its temporary file, then put them
-        all in place."""
-        layers = gp.build_layers(run, cfg)
+    def write(self, run, cfg, parts) -> None:
+        """Assemble every output of ``run`` in temporary files, the reaches' rows
+        from ``parts`` (``parts.layers(index)``) in reach order, then put them all
+        in place."""
+        from reachgauge.results.run_info import created_utc, run_info
+
         current = self.out
+        created = created_utc()
+        csv = {n: self._stage(self.csv_dir / f"{n}.csv") for n in CSV_TABLES} if self.csv_dir else {}
         try:
-            gp.write_layers(self._stage(self.out), layers, run.network.source_crs)
-            for name in CSV_TABLES if self.csv_dir is not None else ():
-                current = self.csv_dir / f"{name}.csv"
-                gp.csv_frame(layers[name]).to_csv(self._stage(current), index=False,
-                                                  float_format="%.6g")
+            with _gpkg_date(created):
+                writer = gp.LayerWriter(self._stage(self.out), run.network.source_crs, cfg.units,
+                                        csv=csv)
+                for index in sorted(h["index"] for h in run.headers):
+                    writer.add(parts.layers(index))
+                writer.close({"run_info": run_info(run, cfg, created)})
             if self.report is not None:
                 from reachgauge.results.report import read_result, render_report
 
@@ -178,6 +184,21 @@ class RunOutputs:
             self._staged.clear()
             self._new_dir = None
             lifecycle.STATE.written = list(done)
+
+
+@contextmanager
+def _gpkg_date(created: str):
+    """GDAL stamps each GeoPackage table with the time it was written
+    (``gpkg_contents.last_change``); stamp the run's creation time instead, so
+    the file depends only on the results."""
+    import pyogrio
+
+    old = pyogrio.get_gdal_config_option("OGR_CURRENT_DATE")
+    pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": created.replace("Z", ".000Z")})
+    try:
+        yield
+    finally:
+        pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": old})
 
 
 def _backup(target: Path) -> Path | None:
