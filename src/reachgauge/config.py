@@ -18,6 +18,7 @@ The ranges are wide: they catch typos and unit slips, not unusual rivers.
 from __future__ import annotations
 
 import dataclasses
+import re
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -40,7 +41,8 @@ BANKFULL_METHODS = ("bank-top", "min-width-depth", "bench", "max-hydraulic-depth
 @dataclass
 class RunConfig:
     # ------------------------------------------------------------------ inputs
-    dem: Path | None = _f(None, "inputs", "terrain raster (any format rasterio opens)")
+    # a local path, or a URL / GDAL virtual path kept as text (remote_location)
+    dem: Path | str | None = _f(None, "inputs", "terrain raster (any format rasterio opens)")
     streams: Path | None = _f(None, "inputs", "stream centrelines (any format geopandas opens)")
     layer: str | None = _f(None, "inputs", "layer of the streams file (default: the first)")
     id_field: str | None = _f(None, "inputs", "field holding a reach id (default: assigned 1, 2, ...)")
@@ -142,6 +144,21 @@ class RunConfig:
         return dataclasses.replace(self, **changes)
 
 
+def remote_location(value) -> bool:
+    """True for a raster address that is not a local path: a URL
+    (``https://host/dem.tif``, ``s3://...``) or a GDAL virtual file system path
+    (``/vsicurl/...``, ``/vsis3/...``). Such an address stays text: ``Path`` would
+    fold ``http://`` into ``http:/``, and a config file's folder must not be
+    prefixed to it."""
+    text = value if isinstance(value, str) else ""
+    return bool(re.match(r"[A-Za-z][A-Za-z0-9+.-]*://", text)) or text.startswith("/vsi")
+
+
+def location(value):
+    """An input setting as it is kept: a remote address as text, else a Path."""
+    return value if remote_location(value) else Path(value)
+
+
 # the settings that name input files
 PATH_FIELDS = tuple(f.name for f in dataclasses.fields(RunConfig) if "Path" in str(f.type))
 FIELDS = {f.name: f for f in dataclasses.fields(RunConfig)}
@@ -177,7 +194,8 @@ def read_toml(path) -> dict:
             flat[k] = v
     # relative paths in a config file are relative to the file
     for key in PATH_FIELDS:
-        if isinstance(flat.get(key), str) and not Path(flat[key]).is_absolute():
+        if (isinstance(flat.get(key), str) and not remote_location(flat[key])
+                and not Path(flat[key]).is_absolute()):
             flat[key] = str(p.parent / flat[key])
     return flat
 

@@ -25,7 +25,7 @@ from pathlib import Path
 
 import numpy as np
 
-from reachgauge.config import FIELDS, MAX_RATING_STAGES, PATH_FIELDS, RunConfig
+from reachgauge.config import FIELDS, MAX_RATING_STAGES, PATH_FIELDS, RunConfig, location
 from reachgauge.errors import InputError, ReachgaugeWarning, shown
 from reachgauge.manning import FOOT
 
@@ -268,7 +268,8 @@ def build(file_values: dict | None, file_name: str | None, cli_values: dict) -> 
 
 
 def to_si(values: dict, units: str) -> dict:
-    """Lengths converted from feet when ``units`` is "us"; lists as tuples; paths as Path."""
+    """Lengths converted from feet when ``units`` is "us"; lists as tuples; paths as
+    Path, except a URL or GDAL virtual path, kept as text (:func:`~reachgauge.config.location`)."""
     out = {}
     for key, val in values.items():
         if FIELDS[key].metadata["length"] and val is not None and units == "us":
@@ -276,7 +277,7 @@ def to_si(values: dict, units: str) -> dict:
         if isinstance(val, list):
             val = tuple(val)
         if key in PATH_FIELDS and val is not None:
-            val = Path(val)
+            val = location(val)
         out[key] = val
     return out
 

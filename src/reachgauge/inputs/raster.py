@@ -19,18 +19,17 @@ Damaged files. :func:`open_raster` yields a dataset whose reads raise
 not be read — a corrupt tile under a valid header — and record it for
 :func:`read_failures`, so the batch gives that reach a status instead of
 counting an internal error.
+
+Remote rasters (a URL, a GDAL virtual path) and mosaics (VRT): see
+:mod:`reachgauge.inputs.locations`.
 """
 
 from __future__ import annotations
 
-import hashlib
 import math
-import os
 import threading
-import time
 from contextlib import contextmanager
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 import rasterio
@@ -42,7 +41,11 @@ from pyproj.exceptions import CRSError
 from rasterio.enums import Resampling
 from rasterio.vrt import WarpedVRT
 
+from reachgauge.config import remote_location
 from reachgauge.errors import InputError
+# check_exists, describe_file and fingerprint are re-exported: callers import them from here
+from reachgauge.inputs.locations import (  # noqa: F401
+    check_exists, describe_file, display_name, fingerprint, opened)
 from reachgauge.manning import FOOT
 
 US_SURVEY_FOOT = 1200 / 3937   # metres (US survey foot, exact by definition)
@@ -66,9 +69,10 @@ class RasterInfo:
     the grid ``transform`` / ``width`` / ``height``; ``res``: pixel size in
     metres; ``bounds`` (left, bottom, right, top) in ``work_crs``; ``nodata``:
     the file's nodata value; ``z_factor``: metres per vertical unit;
-    ``xy_factor``: metres per ``work_crs`` unit; ``fingerprint``: size, mtime
-    and SHA-256 of the first MB of the file; ``z_unit`` and ``z_source``: the
-    elevation unit used and where it came from.
+    ``xy_factor``: metres per ``work_crs`` unit; ``fingerprint``: see
+    :func:`fingerprint`; ``z_unit`` and ``z_source``: the elevation unit used and
+    where it came from. ``path`` is text: a local path, a URL or a GDAL virtual
+    path, as given (workers reopen it).
     """
 
     path: str
@@ -125,10 +129,13 @@ class _Guarded:
             where = _window_text(self._ds, kwargs.get("window"))
             cause = exc.__cause__ or exc.__context__ or exc   # GDAL's own words, if chained
             gdal = " ".join(str(cause).split())[:200]
+            fix = ("the server did not deliver that part (network or server trouble): run "
+                   "again, or download the file and give its local path"
+                   if remote_location(self._name) else
+                   "the file is damaged there (a corrupt tile?): check it with "
+                   "'gdalinfo -checksum' and export or download it again")
             err = TerrainReadError(
-                f"the terrain raster {self._name} cannot be read {where} ({gdal})",
-                "the file is damaged there (a corrupt tile?): check it with "
-                "'gdalinfo -checksum' and export or download it again")
+                f"the terrain raster {self._name} cannot be read {where} ({gdal})", fix)
             log = getattr(_local, "log", None)
             if log is not None:
                 log.append(str(err))
@@ -150,13 +157,9 @@ def open_raster(info: RasterInfo):
     """Open the raster for reading in ``info.work_crs``: the dataset itself, or
     a WarpedVRT (bilinear, nodata NaN, float64) on the grid recorded in ``info``.
     Reads of a damaged window raise :class:`TerrainReadError`."""
-    name = Path(info.path).name
-    try:
-        src = rasterio.open(info.path)
-    except rasterio.errors.RasterioIOError as exc:
-        raise TerrainReadError(f"cannot open the terrain raster {name} ({exc})",
-                               "check that the file is still there and readable") from None
-    with src:
+    name = display_name(info.path)
+    with opened(info.path, TerrainReadError, "cannot open the terrain raster "
+                 f"{name}", "check that the file is still there and readable") as src:
         if not info.warped:
             yield _Guarded(src, name)
             return
@@ -192,42 +195,6 @@ def check_raster(path, what):
                          "give a raster file rasterio can read") from None
 
 
-def check_exists(path, what, option):
-    if path is None:
-        raise InputError(f"no {what} given", f"give {option}")
-    text = str(path)
-    if "://" not in text and not text.startswith("/vsi"):
-        if Path(text).is_dir():
-            raise InputError(f"{what} {text!r} is a folder", f"give a file to {option}")
-        if not Path(text).exists():
-            raise InputError(f"{what} {text!r} does not exist", f"check the {option} path")
-    return text
-
-
-def describe_file(path) -> dict:
-    """Size, modification time and SHA-256 of the first MiB of a local file, so a
-    result can be traced to its inputs without hashing a huge raster whole; just
-    the path for a remote one."""
-    try:
-        st = os.stat(path)
-        with open(path, "rb") as fh:
-            digest = hashlib.sha256(fh.read(1 << 20)).hexdigest()
-    except OSError:
-        return {"path": str(path)}
-    return {"path": str(Path(path).resolve()), "bytes": st.st_size,
-            "modified": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime(st.st_mtime)),
-            "sha256_first_mib": digest}
-
-
-def fingerprint(path) -> str:
-    """:func:`describe_file` as one line: size, mtime and SHA-256 of the first MB."""
-    d = describe_file(path)
-    if "sha256_first_mib" not in d:
-        return f"remote:{path}"
-    mtime = int(os.stat(path).st_mtime)
-    return f"size={d['bytes']};mtime={mtime};sha256-first-MB={d['sha256_first_mib']}"
-
-
 def _unit_factor(crs: CRS) -> float:
     return float(crs.axis_info[0].unit_conversion_factor)
 
@@ -261,13 +228,9 @@ def describe_raster(cfg, notes: list) -> RasterInfo:
     """Open the raster once, check its CRS and elevation unit and choose the
     working CRS."""
     path = check_exists(cfg.dem, "terrain raster", "--dem")
-    try:
-        src = rasterio.open(path)
-    except rasterio.errors.RasterioIOError as exc:
-        raise InputError(f"cannot read the terrain raster {path!r} ({exc})",
-                         "give a raster that GDAL reads (GeoTIFF, VRT, ...)") from None
-    name = Path(path).name
-    with src:
+    name = display_name(path)
+    with opened(path, InputError, f"cannot read the terrain raster {path!r}",
+                 "give a raster that GDAL reads (GeoTIFF, VRT, ...)") as src:
         if src.count > 1:
             notes.append(f"the terrain raster has {src.count} bands; band 1 is used")
         z_unit, z_factor, z_source = vertical_unit((src.units or ("",))[0], cfg.vertical_units,
