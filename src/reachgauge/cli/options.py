@@ -86,8 +86,9 @@ def config_from_args(args) -> RunConfig:
 
 
 class Progress:
-    """A progress bar on a terminal (reaches, transects per second, time left);
-    plain log lines otherwise; nothing with ``quiet``."""
+    """Progress in transects from the start (estimated from the reaches' lengths
+    and the spacing), with the rate and the time left: a bar on a terminal, a log
+    line per reach otherwise, nothing with ``quiet``."""
 
     def __init__(self, quiet=False, verbose=False, stream=None):
         self.quiet, self.verbose = quiet, verbose
@@ -95,30 +96,55 @@ class Progress:
         self.tty = hasattr(self.stream, "isatty") and self.stream.isatty()
         self.bar = None
         self.t0 = time.perf_counter()
-        self.transects = 0
+        self.transects = 0            # finished in this run
+        self.kept = 0                 # finished by an earlier run (--resume)
+        self.expected = 0             # estimate for the whole run
+        self.calls = 0
+
+    def start(self, reaches, transects, reaches_done=0, transects_done=0):
+        """Called once before any reach runs, with the estimated size of the run."""
+        self.t0 = time.perf_counter()
+        self.expected, self.kept = transects, transects_done
+        if self.quiet:
+            return
+        if self.tty:
+            from tqdm import tqdm
+
+            self.bar = tqdm(total=max(transects, transects_done), initial=transects_done,
+                            unit="transect", file=self.stream, dynamic_ncols=True, smoothing=0.1)
+            self.bar.set_postfix_str(f"{reaches_done}/{reaches} reaches")
+        else:
+            kept = (f"; {reaches_done} reaches ({transects_done} transects) kept from the "
+                    "checkpoint" if reaches_done else "")
+            print(f"about {transects} transects in {reaches} reaches{kept}", file=self.stream)
+
+    def left(self) -> str:
+        rate = self.transects / max(time.perf_counter() - self.t0, 1e-9)
+        remaining = max(self.expected - self.kept - self.transects, 0)
+        return f"{rate:.0f} transects/s, about {remaining / rate:.0f} s left" if rate > 0 else ""
 
     def __call__(self, out, done, total):
-        if done == 1:
+        self.calls += 1
+        if self.calls == 1:
             from reachgauge.lifecycle import checkpoint
 
             checkpoint("computing")
         if self.quiet:
             return
-        self.transects += int(out.reach_row.get("transects", 0) or 0)
-        rate = self.transects / max(time.perf_counter() - self.t0, 1e-9)
-        if self.tty:
-            if self.bar is None:
-                from tqdm import tqdm
-
-                self.bar = tqdm(total=total, unit="reach", file=self.stream, dynamic_ncols=True)
-            self.bar.set_postfix_str(f"{rate:.0f} transects/s")
-            self.bar.update(1)
+        n = int(out.reach_row.get("transects", 0) or 0)
+        self.transects += n
+        if self.bar is not None:
+            if self.bar.n + n > self.bar.total:      # the estimate was short
+                self.bar.total = self.bar.n + n
+            self.bar.update(n)
+            self.bar.set_postfix_str(f"{done}/{total} reaches")
             if done == total:
                 self.bar.close()
         else:
             status = out.reach_row.get("status", "")
-            print(f"reach {out.reach_id}: {status}, {out.reach_row.get('transects', 0)} transects, "
-                  f"{out.seconds:.1f} s [{done}/{total}, {rate:.0f} transects/s]", file=self.stream)
+            print(f"reach {out.reach_id}: {status}, {n} transects, {out.seconds:.1f} s "
+                  f"[{done}/{total} reaches, {self.kept + self.transects} of ~{self.expected} "
+                  f"transects, {self.left()}]", file=self.stream)
         if self.verbose and out.reach_row.get("message"):
             print(f"  {out.reach_row['message']}", file=self.stream)
         if out.error and self.verbose:
