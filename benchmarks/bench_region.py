@@ -38,8 +38,9 @@ from the page cache (posix_fadvise DONTNEED, this file only); warm: the same aga
 with the file in the page cache. The run/bare ratio uses the warm figure (the run
 itself finds the file in the page cache, as the bare read has just loaded it).
 
-Run:  PYTHONPATH=src .venv/bin/python benchmarks/bench_region.py [--quick] [--folder DIR]
-(first call generates the region, about 1-2 minutes; then about a minute).
+Run:  PYTHONPATH=src .venv/bin/python benchmarks/bench_region.py [--quick] [--folder DIR] [--profile]
+(first call generates the region, about half a minute; then about a minute; --profile
+adds a cProfile of one --jobs 1 run by step, as bench_speed.py does).
 """
 
 from __future__ import annotations
@@ -82,9 +83,12 @@ import reachgauge
 t = time.perf_counter()
 s = reachgauge.run(out, overwrite=True, **a)
 wall = time.perf_counter() - t
+tm = getattr(s, "timings", None)
+tm = None if tm is None else dict(tm if isinstance(tm, dict) else vars(tm))
+num = lambda v: float(v) if hasattr(v, "__float__") else str(v)
 print("SUMMARY " + json.dumps({"wall": wall, "transects": s.transects, "ok": s.transects_ok,
       "reaches": s.reaches, "reaches_ok": s.reaches_ok, "elapsed": s.elapsed,
-      "timings": getattr(s, "timings", None)}))
+      "timings": tm}, default=num))
 """
 
 BARE = r"""
@@ -229,11 +233,16 @@ def stage_counts(out: Path) -> str:
 def split_text(t: dict | None) -> str:
     if not t:
         return "n/a (the run summary has no timings)"
-    g = {k: float(t.get(k, math.nan)) for k in ("read", "compute", "write", "wall")}
+    g = {k: float(t.get(k) if t.get(k) is not None else math.nan)
+         for k in ("read", "compute", "write", "wall")}
     busy = g["read"] + g["compute"]
+
+    def share(a, b):
+        return f"{100 * a / b:.0f}%" if b > 0 else "n/a"
+
     return (f"read {g['read']:.2f} s, compute {g['compute']:.2f} s (both summed over workers; "
-            f"read {100 * g['read'] / busy:.0f}% of their sum), write {g['write']:.2f} s "
-            f"({100 * g['write'] / g['wall']:.0f}% of the run's wall {g['wall']:.2f} s)")
+            f"read {share(g['read'], busy)} of their sum), write {g['write']:.2f} s "
+            f"({share(g['write'], g['wall'])} of the run's wall {g['wall']:.2f} s)")
 
 
 def mark(ok: bool) -> str:
@@ -270,6 +279,41 @@ def report_runs(runs: dict, bare_warm: float, bare_cold: float, target_n: int) -
           f"{mark(peak < TARGET_MB)}")
 
 
+def profile_run(region, spacing: float, out: Path, top: int = 15) -> None:
+    """cProfile of the batch (``run_to_file``, --jobs 1) in this process, by step,
+    with the step rules of bench_speed.py."""
+    import cProfile
+    import pstats
+
+    import bench_speed as bs
+    from reachgauge.batch.pipeline import run_to_file
+    from reachgauge.config import RunConfig
+
+    cfg = RunConfig(dem=region.dem, streams=region.streams, spacing=spacing,
+                    design_flows=region.flows, jobs=1, **SETTINGS)
+    prof = cProfile.Profile()
+    t = time.perf_counter()
+    prof.enable()
+    summary = run_to_file(cfg, out, overwrite=True)
+    prof.disable()
+    total = time.perf_counter() - t
+    stats = pstats.Stats(prof).stats
+    print(f"\n== where the time goes: run_to_file, {summary.transects} transects, --jobs 1, "
+          f"{total:.1f} s under cProfile (read shares, not seconds) ==")
+    steps = bs.step_times(stats)
+    for s in bs.ORDER:
+        print(f"  {s:<15}{steps[s]:9.2f} s {100 * steps[s] / total:6.1f}%")
+    rest = total - sum(steps.values())
+    print(f"  {'other':<15}{rest:9.2f} s {100 * rest / total:6.1f}%")
+    for title, col in (("cumulative", 3), ("own", 2)):
+        print(f"\n  top {top} functions by {title} time:\n  {'cum s':>7}{'own s':>8}{'calls':>10}"
+              f"  {'step':<14}function")
+        for key in sorted(stats, key=lambda k: -stats[k][col])[:top]:
+            _cc, nc, tt, ct, _ = stats[key]
+            print(f"  {ct:7.2f}{tt:8.2f}{nc:10d}  {bs.dominant_step(key, stats):<14}"
+                  f"{bs.short(key)}")
+
+
 def _load() -> str:
     return " ".join(f"{v:.2f}" for v in os.getloadavg()) if hasattr(os, "getloadavg") else "n/a"
 
@@ -279,6 +323,8 @@ def main(argv=None) -> None:
     ap.add_argument("--quick", action="store_true", help="a 4 km region, 2,000 transects")
     ap.add_argument("--folder", type=Path, help="region cache folder")
     ap.add_argument("--jobs", type=int, nargs="+", default=[1, 2])
+    ap.add_argument("--profile", action="store_true",
+                    help="also profile one --jobs 1 run in this process (about 2x its time)")
     args = ap.parse_args(argv)
     cfg = QUICK if args.quick else FULL
     start = time.perf_counter()
@@ -304,9 +350,11 @@ def main(argv=None) -> None:
             out = Path(tmp) / f"result_j{jobs}.gpkg"
             runs[jobs] = measure_run(region.dem, region.streams, out, spacing=spacing,
                                      jobs=jobs, flows=region.flows)
-        print(f"\n== end to end (subprocess: start-up, read, compute, write) ==")
+        print("\n== end to end (subprocess: start-up, read, compute, write) ==")
         print(f"  output: {stage_counts(out)} (want {STAGES})")
         report_runs(runs, warm["seconds"], cold["seconds"], cfg["transects"])
+        if args.profile:
+            profile_run(region, spacing, Path(tmp) / "result_profile.gpkg")
     print(f"\nbench_region took {time.perf_counter() - start:.0f} s; load average {_load()} "
           "(other work on the machine inflates every time above)")
 
