@@ -234,14 +234,15 @@ def split_text(t: dict | None) -> str:
     if not t:
         return "n/a (the run summary has no timings)"
     g = {k: float(t.get(k) if t.get(k) is not None else math.nan)
-         for k in ("read", "compute", "write", "wall")}
+         for k in ("read", "compute", "keep", "write", "wall")}
     busy = g["read"] + g["compute"]
 
     def share(a, b):
         return f"{100 * a / b:.0f}%" if b > 0 else "n/a"
 
     return (f"read {g['read']:.2f} s, compute {g['compute']:.2f} s (both summed over workers; "
-            f"read {share(g['read'], busy)} of their sum), write {g['write']:.2f} s "
+            f"read {share(g['read'], busy)} of their sum), keep (parent, checkpoint) "
+            f"{g['keep']:.2f} s, write {g['write']:.2f} s "
             f"({share(g['write'], g['wall'])} of the run's wall {g['wall']:.2f} s)")
 
 

@@ -185,6 +185,9 @@ def compute(cfg: RunConfig, net=None, shared=None, sink=None, done=None,
         timings["read"] += getattr(out, "read_seconds", 0.0)
         if progress:
             progress(out, len(headers), total)
+    # read: the terrain windows; compute: the rest of the tasks (both summed over
+    # workers); keep: the parent putting finished reaches into the checkpoint
+    timings["compute"] = timings.pop("task") - timings["read"]
     ordered = [headers[i] for i in sorted(headers)]
     outcome.check_outputs([h["reach_row"] for h in ordered], net, cfg)
     return RunResult(net, ordered, time.perf_counter() - t0, list(net.warnings), notes, timings)
