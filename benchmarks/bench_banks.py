@@ -212,7 +212,7 @@ METHOD_NOTES = """Methods (all at the stage the default method picks, so only th
 
 
 def methods(work: Path, shapes):
-    from reachgauge.api import settings
+    from reachgauge.api import configure as settings
     from reachgauge.batch.pipeline import cut_all
 
     names = None

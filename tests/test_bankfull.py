@@ -165,14 +165,28 @@ def test_trapezoid_cut_at_its_bank_tops_spills_first():
 
 
 def test_method_without_a_break_falls_back_to_the_median_of_the_others():
-    # seed 2 of this small noisy channel: the W/D minimum is not marked, the others find
-    # the floodplain (found by scanning seeds; the behaviour, not the seed, is the point)
-    syn = compound_channel(bottom_width=2.0, bank_height=0.6, side_slope=1.0,
-                           floodplain=(15.0, 15.0), noise=0.03, seed=2)
-    cand = candidate_stages(syn.section)
+    # A triangular channel (side slopes z = 2 H:V, depth h = 1 m) in a flat floodplain
+    # 40 m wide between rising valley walls. In a triangle T = 2zy and A = zy², so the
+    # width-depth measure T²/A = 4z at every stage below the bank top (closed form,
+    # plane geometry): it has no minimum there to mark, and above the bank top it only
+    # rises, so the min-width-depth method finds no break by construction. The floodplain
+    # is a clear break for the other methods (the width jumps from 4 m to 40 m; the
+    # hydraulic depth A/T = y/2 peaks at the bank top). Noise-free: noise would give
+    # T²/A minima of its own, and which of them are marked depends on the draw.
+    z, h = 2.0, 1.0
+    x = np.arange(-22.0, 22.0 + 1e-9, 0.5)
+    ground = np.where(np.abs(x) > 20.0, h + (np.abs(x) - 20.0), np.minimum(np.abs(x) / z, h))
+    cs = CrossSection(x, 100.0 + ground)
+    y = np.linspace(0.1, 0.99, 50)
+    g = cs.geometry(100.0 + y)
+    np.testing.assert_allclose(g.top_width ** 2 / g.area, 4 * z, rtol=1e-9)   # the premise
+    cand = candidate_stages(cs)
     assert np.isnan(cand["min-width-depth"])
-    pick = pick_bankfull(syn.section, "min-width-depth")
     found = [v for v in cand.values() if np.isfinite(v)]
+    assert len(found) == 3
+    # the others find the bank top within the 5 cm break rise (package docstring)
+    np.testing.assert_allclose(found, 100.0 + h, atol=0.05)
+    pick = pick_bankfull(cs, "min-width-depth")
     assert pick.stage == pytest.approx(np.median(found))
     assert pick.fallback == "methods-median" and pick.source == "methods-median"
     assert pick.method == "min-width-depth"

@@ -16,8 +16,11 @@ What must match and how closely:
 - the bench index keeps its definition too (its reference rate is still the exact
   median of the index below each candidate peak), so it is compared exactly as well.
 
-Changed on purpose since (issue 9, "no channel, no confident figure"), and changed in
-the reference below to match, marked "issue 9": a fallback stage (the chosen method
+Changed on purpose since (issue 9), and changed in the reference below to match,
+marked "issue 9": the noise σ of a section is measured from residuals about the
+points two places either side, bends left out (bilinear sampling correlates
+neighbouring samples, so the nearest-neighbour residual read about 3/4 of their
+scatter; kernel/bed.py); a fallback stage (the chosen method
 found no break) has confidence "none" instead of "low"; a pick that too few methods
 confirm is flagged ``break-unconfirmed`` instead of a second ``no-clear-break``; and
 a pick whose bank lies within three sample steps of a transect end is flagged
@@ -52,14 +55,36 @@ R_METHODS = ("bank-top", "min-width-depth", "bench", "max-hydraulic-depth")
 R_USER = ("fixed-depth", "regional")
 
 
+def r_residuals(x, z, lag):
+    w = (x[lag:-lag] - x[:-2 * lag]) / (x[2 * lag:] - x[:-2 * lag])
+    r = z[lag:-lag] - (z[:-2 * lag] + w * (z[2 * lag:] - z[:-2 * lag]))
+    return r / np.sqrt(1.0 + w * w + (1.0 - w) ** 2)
+
+
+# issue 9: the noise of a section's samples is measured against the points two places
+# either side (bilinear sampling correlates neighbours), leaving out every point within
+# two places of a bend (Hampel's rule, 3 scaled MADs, on the nearest-neighbour
+# residuals, then once more on the lag-2 ones); was the MAD of the nearest-neighbour
+# residuals (kept as the 3- and 4-point case). A copy of kernel/bed.py noise at 679966b,
+# one section at a time.
 def r_profile_noise(section):
     x, z = section.offset, section.elevation
     if x.size < 3:
         return 0.0
-    w = (x[1:-1] - x[:-2]) / (x[2:] - x[:-2])
-    r = z[1:-1] - (z[:-2] + w * (z[2:] - z[:-2]))
-    r = r / np.sqrt(1.0 + w * w + (1.0 - w) ** 2)
-    return float(median_abs_deviation(r, scale="normal"))
+    r1 = r_residuals(x, z, 1)
+    s1 = float(median_abs_deviation(r1, scale="normal"))
+    if x.size < 5:
+        return s1 if np.isfinite(s1) else 0.0
+    bend = np.zeros(x.size, dtype=bool)
+    bend[1:-1] = np.abs(r1 - np.median(r1)) > 3.0 * s1
+    r2_all = r_residuals(x, z, 2)
+    near = np.array([bend[i - 2:i + 3].any() for i in range(2, x.size - 2)])
+    r2 = r2_all[~near]
+    if r2.size:
+        s2 = median_abs_deviation(r2, scale="normal")
+        r2 = r2[~(np.abs(r2 - np.median(r2)) > 3.0 * s2)]
+    sigma = median_abs_deviation(r2 if r2.size else r2_all, scale="normal")
+    return float(sigma) if np.isfinite(sigma) else 0.0
 
 
 @dataclass(frozen=True)

@@ -18,10 +18,19 @@ Tolerances, and why:
   centreline), and its elevation within 5σ of the bed.
 - Slope: a line fitted through points whose elevations scatter by σ_t has a
   standard error σ_t / √Σ(c − c̄)² (least squares; Theil–Sen is nearly as
-  efficient). The tests take σ_t from the thalweg's own scatter about the true
-  bed and allow 4 standard errors: about 2–3 % for a reach, 5–20 % for a
-  station's 200 m window. Along a meander the local slope varies; the reference
-  is the true bed drop over the same window.
+  efficient). σ_t is bounded by the raster's noise s, not measured from the run:
+  a bilinear sample is a weighted mean of pixels (weights ≥ 0 summing to 1), so its
+  standard deviation is at most s; the bed level is the least of a transect's bed
+  samples raised by a constant (σ is one figure for the reach, kernel.bed.
+  reach_noise), and the least of jointly normal variables is a 1-Lipschitz function
+  of the underlying independent draws scaled by at most s, whose variance the
+  Gaussian Poincaré inequality bounds by s² (Boucheron, S., Lugosi, G. & Massart,
+  P., 2013, Concentration Inequalities, Oxford UP, Thm 3.20 [memory]). Transects
+  20 m apart share no pixel, so their bed levels are independent. The tests check
+  the thalweg's scatter about the true bed is within s and allow 4 standard errors
+  with σ_t = s: about 5 % for a reach, 10–35 % for a station's 200 m window.
+  Along a meander the local slope varies; the reference is the true bed drop over
+  the same window.
 """
 
 import pickle
@@ -107,9 +116,11 @@ def test_straight_channel_geometry_thalweg_and_slope(straight):
     assert np.all(np.abs(r.thalweg_shift - 3.0) <= B / 2 + v.res)
     bed = v.bed(true_chainage(v, r.thalweg_xy))
     assert np.all(np.abs(r.thalweg_z - bed) <= 5 * 0.02)
-    sigma = np.std(r.thalweg_z - bed)
+    # the bed levels scatter by no more than the raster's noise (module docstring)
+    sigma = 0.02
+    assert np.std(r.thalweg_z - bed) <= sigma
     tol = reach_tolerance(r.chainage, sigma)
-    assert tol < 0.03 * 0.002                                   # the check is a tight one
+    assert tol < 0.1 * 0.002       # about 5 % (26 stations 20 m apart): a slope off by a tenth fails
     assert abs(r.reach_slope - 0.002) <= tol
     assert np.all(np.abs(r.slope - 0.002) <= fit_tolerance(r.chainage, cfg.slope_window, sigma))
 
@@ -151,7 +162,9 @@ def test_meandering_channel_offset_jittered_noisy(tmp_path):
     dist = shapely.distance(shapely.points(r.thalweg_xy), v.centreline)
     assert np.all(dist <= B / 2 + v.res)
     s = true_chainage(v, r.thalweg_xy)
-    sigma = np.std(r.thalweg_z - v.bed(s))
+    # the bed levels scatter by no more than the raster's noise (module docstring)
+    sigma = 0.03
+    assert np.std(r.thalweg_z - v.bed(s)) <= sigma
     # the drawn, jittered line is a little longer than the channel; allow that too
     stretch = v.length_m / r.reach.length_m
     assert 0.97 < stretch <= 1.0

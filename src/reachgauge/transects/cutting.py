@@ -201,9 +201,12 @@ def _cut(ds, raster, reach, cfg, neighbours):
     candidates = np.where(near[None, :] & np.isfinite(z), z, np.inf)
     low_col = np.argmin(candidates, axis=1)
     low = candidates[np.arange(t), low_col]
-    # the bed level below the lidar noise (kernel.bed): depths are measured from it
+    # the bed level below the lidar noise (kernel.bed): depths are measured from it.
+    # The noise is the raster's, not a transect's: one σ for the reach, pooled over its
+    # transects (kernel.bed.reach_noise), so the bed levels, and the slope fitted to
+    # them, do not scatter with each transect's own estimate of it
     prof = K.profiles(u, z, low_col)
-    bed_z = bed.bed_level(prof, bed.noise(prof))
+    bed_z = bed.bed_level(prof, bed.reach_noise(prof))
     tz = np.where(np.isfinite(z[:, n_half]) & np.isfinite(low), bed_z, np.nan)
 
     # Transect status and flags, as arrays over transects.

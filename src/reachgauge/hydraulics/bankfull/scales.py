@@ -2,10 +2,19 @@
 
 Each scale comes from the profile itself, so noisy and clean DEMs are read alike:
 
-- the *noise* σ: a robust estimate of the elevation scatter about the local ground
-  line (normal-scaled median absolute deviation of the residuals about each pair of
-  neighbours; Rousseeuw, P. J. & Croux, C., 1993, "Alternatives to the median absolute
-  deviation", JASA 88 [memory], for the MAD as a robust scale);
+- the *noise* σ: a robust estimate of the elevation scatter of the profile's own
+  samples about its local ground line (:func:`reachgauge.kernel.bed.noise`: the
+  normal-scaled median absolute deviation of the residuals about the points two
+  places either side, bends left out; Rousseeuw, P. J. & Croux, C., 1993,
+  "Alternatives to the median absolute deviation", JASA 88 [memory], for the MAD as
+  a robust scale). Per profile, not per reach (the bed level uses the reach's,
+  :func:`reachgauge.kernel.bed.reach_noise`): the break rise guards against the
+  spikes on *this* section's banks holding the water edge back, and a section
+  rougher than its reach (brush, a rocky bank) needs the larger rise. Measured for
+  issue 9 with benchmarks/bench_banks.py: the reach's σ here instead changed the 18
+  synthetic cases by at most 0.2 % in width, area and Q but one (meander, 2 m, 5 cm:
+  Q -4.5 -> -5.3 %, past the 5 % target), and moved the demo reaches' widths by
+  -0.02 to +0.22 m (all but one wider); no gain to pay for the lost local guard;
 - the *break rise* δ = max(5 cm, 3σ): the rise of stage over which a break must show
   (below 3σ a noise spike on a bank can hold the water edge back);
 - breaks are sought only at depths of at least 2δ, because within a few σ of the
