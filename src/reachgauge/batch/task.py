@@ -43,6 +43,26 @@ def _key(info) -> tuple:
             info.crs.srs, info.work_crs.srs)
 
 
+class _Kept:
+    """An open dataset and what closes it. A thread that ends with datasets
+    still kept (a Dask worker's thread, say) drops them when its thread-local
+    storage goes, maybe after rasterio's own per-thread GDAL environment has
+    gone: GDAL has closed the file by then and only rasterio's bookkeeping of
+    that environment fails, so that failure is let pass."""
+
+    def __init__(self, info):
+        self.stack = ExitStack()
+        self.ds = self.stack.enter_context(raster_mod.open_raster(info))
+
+    def close(self):
+        try:
+            self.stack.close()
+        except Exception:  # noqa: BLE001 - see the class docstring
+            pass
+
+    __del__ = close
+
+
 def opened(info: raster_mod.RasterInfo):
     """:func:`reachgauge.inputs.raster.open_raster`, kept open in this thread for
     the next reach on the same raster (at most :data:`KEEP_OPEN`, the least
@@ -52,22 +72,19 @@ def opened(info: raster_mod.RasterInfo):
     if cache is None:
         cache = _threads.open = OrderedDict()
     key = _key(info)
-    entry = cache.pop(key, None)
-    if entry is None:
-        stack = ExitStack()
-        entry = (stack, stack.enter_context(raster_mod.open_raster(info)))
-    cache[key] = entry
+    kept = cache.pop(key, None) or _Kept(info)
+    cache[key] = kept
     while len(cache) > KEEP_OPEN:
-        cache.popitem(last=False)[1][0].close()
-    return entry[1]
+        cache.popitem(last=False)[1].close()
+    return kept.ds
 
 
 def discard(info: raster_mod.RasterInfo) -> None:
     """Close this thread's kept dataset of ``info``: after a damaged read, or an
     unexpected error, the next reach starts from a freshly opened file."""
-    entry = (getattr(_threads, "open", None) or {}).pop(_key(info), None)
-    if entry is not None:
-        entry[0].close()
+    kept = (getattr(_threads, "open", None) or {}).pop(_key(info), None)
+    if kept is not None:
+        kept.close()
 
 
 def close_rasters() -> None:
@@ -76,7 +93,7 @@ def close_rasters() -> None:
     written."""
     cache = getattr(_threads, "open", None) or {}
     while cache:
-        cache.popitem()[1][0].close()
+        cache.popitem()[1].close()
 
 
 @dataclass
