@@ -29,14 +29,26 @@ class SharedInputs:
     observations: pd.DataFrame | None = None
     cowan: dict | None = None
     class_table: dict | None = None
+    _obs_groups: tuple | None = field(default=None, init=False, repr=False, compare=False)
 
     def for_reach(self, reach) -> hydraulics.ReachInputs:
+        """This reach's rows of the run-wide tables and nothing more, so that a
+        task's payload does not grow with the run: its design flows, its
+        observations (an empty table when it has none), its Cowan terms (None
+        when it has none). The land-cover class table is small and whole."""
         rid = str(reach.reach_id)
         obs = None
         if self.observations is not None:
-            obs = self.observations[self.observations["reach_id"] == rid].reset_index(drop=True)
+            # grouped once per table: a filter per reach costs reaches × rows
+            if self._obs_groups is None or self._obs_groups[0] is not self.observations:
+                frame = self.observations
+                groups = {str(k): g.reset_index(drop=True)
+                          for k, g in frame.groupby("reach_id", sort=False)}
+                self._obs_groups = (frame, groups, frame.iloc[0:0].reset_index(drop=True))
+            obs = self._obs_groups[1].get(rid, self._obs_groups[2])
+        cowan = {rid: self.cowan[rid]} if self.cowan and rid in self.cowan else None
         return hydraulics.ReachInputs(flows=dict(self.flows.get(rid, {})), observations=obs,
-                                      cowan=self.cowan, class_table=self.class_table)
+                                      cowan=cowan, class_table=self.class_table)
 
 
 def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:
