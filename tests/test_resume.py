@@ -118,27 +118,21 @@ def test_a_killed_run_resumes_to_the_uninterrupted_result(valley, reference, tmp
 
 def _interrupted(valley, out):
     """A checkpoint as an interrupted run leaves it: three of six reaches kept."""
-    from reachgauge.batch import pipeline
+    from reachgauge.batch import dispatch
 
-    real = pipeline.compute
+    real = dispatch.iterate
 
-    def stop_after_three(cfg, net, shared, sink, done, progress):
-        class Stop:
-            n = 0
+    def stop_after_three(*a, **k):
+        for n, kept in enumerate(real(*a, **k), 1):
+            yield kept
+            if n == 3:
+                raise KeyboardInterrupt
 
-            def add(self, index, header, layers):
-                sink.add(index, header, layers)
-                Stop.n += 1
-                if Stop.n == 3:
-                    raise KeyboardInterrupt
-
-        return real(cfg, net, shared, Stop(), done, progress)
-
-    pipeline.compute = stop_after_three
+    dispatch.iterate = stop_after_three
     try:
         assert main([str(a) for a in args(valley, out, "--quiet")]) == 130
     finally:
-        pipeline.compute = real
+        dispatch.iterate = real
     folder = Path(f"{out}.checkpoint")
     assert len(list(folder.glob("reach-*.pkl"))) == 3
     return folder

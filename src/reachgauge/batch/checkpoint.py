@@ -20,6 +20,7 @@ again on resume.
 
 from __future__ import annotations
 
+import hashlib
 import json
 import os
 import pickle
@@ -67,7 +68,7 @@ class Checkpoint:
     # ------------------------------------------------------------ start and end
     def open(self, resume: bool) -> dict:
         """Create the folder, or (``resume``) check and reopen it. Returns
-        {reach index: header} of the parts already there."""
+        {reach id: header} of the parts already there."""
         f = self.folder
         if f.exists() and not f.is_dir():
             raise InputError(f"{str(f)!r} is in the way of the run's checkpoint folder",
@@ -101,7 +102,7 @@ class Checkpoint:
                                  f"delete {str(f)!r} and run again without --resume")
         else:
             f.mkdir()
-            self._write(f / "run.json", json.dumps(self.identity, indent=1).encode())
+            _write(f / "run.json", json.dumps(self.identity, indent=1).encode())
         lifecycle.hold(f)
         self._held = True
         lifecycle.clean_stale(f)
@@ -120,48 +121,58 @@ class Checkpoint:
         shutil.rmtree(self.folder, ignore_errors=True)
 
     # -------------------------------------------------------------- the parts
-    def _part(self, index: int) -> Path:
-        return self.folder / f"reach-{index:07d}.pkl"
-
-    def add(self, index: int, header: dict, layers: dict) -> None:
-        """Keep reach ``index``'s ``header`` (small: the reach row and its counts)
-        and ``layers`` ({name: frame}) as one part."""
-        blob = pickle.dumps(header, protocol=5) + pickle.dumps(layers, protocol=5)
-        try:
-            self._write(self._part(index), blob)
-        except OSError as exc:
-            from reachgauge.results.geopackage import write_failed
-
-            err = write_failed(self.folder, exc)
-            raise OutputError(f"cannot keep a finished reach in the checkpoint {str(self.folder)!r} "
-                              f"({exc.strerror or exc}); {str(self.out)!r} was not written",
-                              err.fix) from None
+    def add(self, header: dict, layers: dict) -> None:
+        """Keep a reach's ``header`` (small: the reach row and its counts) and
+        ``layers`` ({name: frame}) as one part."""
+        write_part(self.folder, header, layers, self.out)
 
     def headers(self) -> dict:
-        """{reach index: header} of every part (reads only the headers)."""
+        """{reach id: header} of every part (reads only the headers)."""
         out = {}
         for p in sorted(self.folder.glob("reach-*.pkl")):
             with open(p, "rb") as fh:
-                out[int(p.stem.split("-")[1])] = pickle.load(fh)
+                h = pickle.load(fh)
+            out[h["reach_id"]] = h
         return out
 
-    def layers(self, index: int) -> dict:
-        with open(self._part(index), "rb") as fh:
+    def layers(self, header: dict) -> dict:
+        with open(part_path(self.folder, header["reach_id"]), "rb") as fh:
             pickle.load(fh)
             return pickle.load(fh)
 
-    def _write(self, path: Path, data: bytes) -> None:
-        tmp = lifecycle.temp_path(path)
-        try:
-            with open(tmp, "wb") as fh:
-                fh.write(data)
-                fh.flush()
-                os.fsync(fh.fileno())     # whole on the disk before it takes its name
-            os.replace(tmp, path)
-        except BaseException:
-            lifecycle.remove_temp(tmp)
-            raise
-        _fsync_dir(path.parent)
+
+def part_path(folder, reach_id: str) -> Path:
+    """The part of a reach: named by a digest of its id (ids may hold any character)."""
+    return Path(folder) / f"reach-{hashlib.sha256(str(reach_id).encode()).hexdigest()[:24]}.pkl"
+
+
+def write_part(folder, header: dict, layers: dict, out=None) -> None:
+    """Write one reach's part into ``folder`` (in a worker or in the run's
+    process): under a temporary name, flushed to the disk, then renamed."""
+    blob = pickle.dumps(header, protocol=5) + pickle.dumps(layers, protocol=5)
+    try:
+        _write(part_path(folder, header["reach_id"]), blob)
+    except OSError as exc:
+        from reachgauge.results.geopackage import write_failed
+
+        err = write_failed(folder, exc)
+        raise OutputError(f"cannot keep a finished reach in the checkpoint {str(folder)!r} "
+                          f"({exc.strerror or exc})"
+                          + (f"; {str(out)!r} was not written" if out else ""), err.fix) from None
+
+
+def _write(path: Path, data: bytes) -> None:
+    tmp = lifecycle.temp_path(path)
+    try:
+        with open(tmp, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())     # whole on the disk before it takes its name
+        os.replace(tmp, path)
+    except BaseException:
+        lifecycle.remove_temp(tmp)
+        raise
+    _fsync_dir(path.parent)
 
 
 def _fsync_dir(folder: Path) -> None:

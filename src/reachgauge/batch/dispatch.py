@@ -41,7 +41,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Callable, Iterable, Iterator
 
 from reachgauge import lifecycle
-from reachgauge.batch.task import ReachOutput, close_rasters, process_reach
+from reachgauge.batch.task import ReachOutput, close_rasters, run_task
 from reachgauge.errors import InputError
 
 if TYPE_CHECKING:
@@ -59,25 +59,29 @@ PRELOAD = ["reachgauge.batch.task", "reachgauge.inputs.landcover"]
 
 
 def iterate(cfg: RunConfig, net, shared: SharedInputs, reaches=None,
-            note: Callable[[str], None] | None = None) -> Iterator[ReachOutput]:
+            note: Callable[[str], None] | None = None, finish=None,
+            finish_remote=None) -> Iterator[ReachOutput]:
     """Yield a :class:`ReachOutput` per reach of ``reaches`` (default: every
     reach of ``net``) as each finishes, on the executor the config asks for:
     ``scheduler`` (Dask), else a local pool or serial (:func:`plan`). ``note``
-    gets one line for each choice made here that the user should know of."""
+    gets one line for each choice made here that the user should know of.
+    ``finish(output, reach)``, picklable, runs in the worker on each output and
+    what it returns is yielded instead; on Dask ``finish_remote`` does (workers
+    there may not see this machine's disk)."""
     reaches = list(net.reaches if reaches is None else reaches)
     if cfg.scheduler:
-        yield from _on_dask(cfg, net, shared, reaches)
+        yield from _on_dask(cfg, net, shared, reaches, finish_remote)
         return
     workers, why = plan(cfg, reaches)
     if why and note:
         note(why)
     args = tasks(cfg, net, shared, reaches)
     if workers > 1:
-        yield from _in_pool(args, workers)
+        yield from _in_pool(args, workers, finish)
         return
     try:
         for a in args:
-            yield process_reach(*a)
+            yield run_task(finish, *a)
     finally:
         close_rasters()
 
@@ -199,7 +203,7 @@ def pool(workers: int):
                                initargs=initargs)
 
 
-def _in_pool(args, workers: int):
+def _in_pool(args, workers: int, finish=None):
     from concurrent.futures import FIRST_COMPLETED, wait
 
     pending: set = set()
@@ -211,12 +215,12 @@ def _in_pool(args, workers: int):
         return fut
 
     with pool(workers) as ex:
-        yield from bounded(args, lambda a: pending.add(ex.submit(process_reach, *a)), next_done,
+        yield from bounded(args, lambda a: pending.add(ex.submit(run_task, finish, *a)), next_done,
                            lambda: WINDOW_PER_WORKER * workers)
 
 
 # ======================================================================= Dask
-def _on_dask(cfg: RunConfig, net, shared: SharedInputs, reaches):
+def _on_dask(cfg: RunConfig, net, shared: SharedInputs, reaches, finish=None):
     """The same tasks on a Dask cluster: workers open the raster themselves from
     its path (the client sends none of its pixels), the window follows the
     cluster's thread count as workers come and go."""
@@ -248,7 +252,7 @@ def _on_dask(cfg: RunConfig, net, shared: SharedInputs, reaches):
         ac = as_completed(loop=client.loop)
         done = iter(ac)
         yield from bounded(tasks(cfg, net, shared, reaches, raster, landcover),
-                           lambda a: ac.add(client.submit(process_reach, *a, pure=False)),
+                           lambda a: ac.add(client.submit(run_task, finish, *a, pure=False)),
                            lambda: next(done), window)
 
 

@@ -4,6 +4,7 @@ summarise, and write the results."""
 
 from __future__ import annotations
 
+import dataclasses
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -139,14 +140,16 @@ class KeptInMemory:
     (small runs and tests; a file run streams them to a
     :class:`~reachgauge.batch.checkpoint.Checkpoint`)."""
 
+    folder = None     # no folder: workers hand their rows back
+
     def __init__(self):
-        self.parts: dict[int, dict] = {}
+        self.parts: dict[str, dict] = {}
 
-    def add(self, index: int, header: dict, layers: dict) -> None:
-        self.parts[index] = layers
+    def add(self, header: dict, layers: dict) -> None:
+        self.parts[header["reach_id"]] = layers
 
-    def layers(self, index: int) -> dict:
-        return self.parts[index]
+    def layers(self, header: dict) -> dict:
+        return self.parts[header["reach_id"]]
 
 
 def estimated_transects(reach, cfg: RunConfig) -> int:
@@ -158,16 +161,16 @@ def estimated_transects(reach, cfg: RunConfig) -> int:
 
 def compute(cfg: RunConfig, net=None, shared=None, sink=None, done=None,
             progress=None) -> RunResult:
-    """Run every reach not in ``done`` ({index: header} of reaches already kept)
-    and hand each one's layers (final form, :mod:`reachgauge.results.layers`) to
-    ``sink.add(index, header, layers)`` as it finishes.
+    """Run every reach not in ``done`` ({reach id: header} of reaches already
+    kept). Each finished reach's layers (final form, :mod:`reachgauge.results.layers`)
+    go to ``sink``: written by the worker into ``sink.folder`` where there is
+    one and the worker shares this disk, else handed to ``sink.add(header, layers)``.
 
     ``progress(output, done, total)`` is called after each reach; a progress
     object with a ``start(reaches, transects, reaches_done, transects_done)``
     method hears the estimated size first.
     """
-    from reachgauge.batch.summary import tally
-    from reachgauge.results.layers import reach_layers
+    from reachgauge.batch.keep import Keeper
 
     t0 = time.perf_counter()
     if net is None:
@@ -177,7 +180,7 @@ def compute(cfg: RunConfig, net=None, shared=None, sink=None, done=None,
     sink = sink if sink is not None else KeptInMemory()
     headers = dict(done or {})
     order = {str(r.reach_id): i for i, r in enumerate(net.reaches)}
-    todo = [r for i, r in enumerate(net.reaches) if i not in headers]
+    todo = [r for r in net.reaches if str(r.reach_id) not in headers]
     total = len(net.reaches)
     start = getattr(progress, "start", None)
     if start:
@@ -185,22 +188,24 @@ def compute(cfg: RunConfig, net=None, shared=None, sink=None, done=None,
               sum(h["tally"]["transects"] for h in headers.values()))
     notes: list[str] = []
     timings = {"task": 0.0, "read": 0.0, "keep": 0.0}
-    work, source = net.work_crs, net.source_crs
-    for out in dispatch.iterate(cfg, net, shared, reaches=todo, note=notes.append):
+    folder = None if sink.folder is None else str(sink.folder)
+    keeper = Keeper(cfg.units, net.work_crs, net.source_crs, folder)
+    for kept in dispatch.iterate(cfg, net, shared, reaches=todo, note=notes.append,
+                                 finish=keeper, finish_remote=Keeper(*dataclasses.astuple(keeper)[:3])):
         t1 = time.perf_counter()
-        i = order[out.reach_id]
-        header = {**tally(out), "index": i}
-        sink.add(i, header, reach_layers(out, net.reaches[i].geometry, cfg, work, source))
-        headers[i] = header
+        if kept.layers is not None:
+            sink.add(kept.header, kept.layers)
+        headers[kept.header["reach_id"]] = kept.header
         timings["keep"] += time.perf_counter() - t1
-        timings["task"] += out.seconds
-        timings["read"] += getattr(out, "read_seconds", 0.0)
+        timings["task"] += kept.output.seconds
+        timings["read"] += kept.output.read_seconds
         if progress:
-            progress(out, len(headers), total)
-    # read: the terrain windows; compute: the rest of the tasks (both summed over
-    # workers); keep: the parent putting finished reaches into the checkpoint
+            progress(kept.output, len(headers), total)
+    # read: the terrain windows; compute: the rest of the tasks, shaping and
+    # keeping the rows included (both summed over workers); keep: the run's own
+    # process putting rows sent back into the checkpoint
     timings["compute"] = timings.pop("task") - timings["read"]
-    ordered = [headers[i] for i in sorted(headers)]
+    ordered = sorted(headers.values(), key=lambda h: order[h["reach_id"]])
     outcome.check_outputs([h["reach_row"] for h in ordered], net, cfg)
     return RunResult(net, ordered, time.perf_counter() - t0, list(net.warnings), notes, timings)
 

@@ -109,6 +109,17 @@ class ReachOutput:
     offsets: np.ndarray | None = None
     error: str | None = None
     seconds: float = 0.0
+    read_seconds: float = 0.0
+
+
+def run_task(finish, *args):
+    """:func:`process_reach` on ``args``, the seconds spent reading terrain
+    recorded, then ``finish(output, reach)`` where given (in the worker: see
+    :class:`reachgauge.batch.keep.Keeper`)."""
+    r0 = raster_mod.read_seconds()
+    out = process_reach(*args)
+    out.read_seconds = raster_mod.read_seconds() - r0
+    return out if finish is None else finish(out, args[1])
 
 
 def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,

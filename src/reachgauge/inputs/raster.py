@@ -28,6 +28,7 @@ from __future__ import annotations
 
 import math
 import threading
+import time
 from contextlib import contextmanager
 from dataclasses import dataclass
 
@@ -123,6 +124,7 @@ class _Guarded:
         return getattr(self._ds, attr)
 
     def read(self, *args, **kwargs):
+        t0 = time.perf_counter()
         try:
             return self._ds.read(*args, **kwargs)
         except rasterio.errors.RasterioError as exc:
@@ -140,6 +142,13 @@ class _Guarded:
             if log is not None:
                 log.append(str(err))
             raise err from None
+        finally:
+            _local.read_s = getattr(_local, "read_s", 0.0) + time.perf_counter() - t0
+
+
+def read_seconds() -> float:
+    """Seconds this thread has spent reading terrain windows (for the run's timings)."""
+    return getattr(_local, "read_s", 0.0)
 
 
 def _window_text(ds, window):

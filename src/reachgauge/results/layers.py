@@ -93,9 +93,10 @@ def empty(name: str, units: str, crs):
     return finish(gpd.GeoDataFrame(df, geometry=gpd.GeoSeries([], crs=crs)), name, units)
 
 
-def reach_layers(out, line, cfg, work, source) -> dict:
+def reach_layers(out, line, units: str, work, source) -> dict:
     """Every layer's rows for one reach's output ``out`` (a
-    :class:`~reachgauge.batch.task.ReachOutput`): the run's units, CRS ``source``.
+    :class:`~reachgauge.batch.task.ReachOutput`): in ``units`` ("si" or "us"), CRS
+    ``source``.
     ``line``: the reach's centreline in ``work``. Layers the reach has no rows
     of are left out."""
     import geopandas as gpd
@@ -103,7 +104,7 @@ def reach_layers(out, line, cfg, work, source) -> dict:
 
     def geo(df, geometry, name):
         g = gpd.GeoDataFrame(df.reset_index(drop=True), geometry=list(geometry), crs=work)
-        return finish(g.to_crs(source) if source != work else g, name, cfg.units)
+        return finish(g.to_crs(source) if source != work else g, name, units)
 
     layers = {"reaches": geo(pd.DataFrame([out.reach_row]), [line], "reaches")}
     res = out.result
@@ -118,7 +119,7 @@ def reach_layers(out, line, cfg, work, source) -> dict:
                         ("design_checks", res.design), ("profile", res.profile),
                         ("calibration", res.calibration), ("sample_sections", sample_sections(out))):
         if frame is not None and len(frame):
-            layers[name] = finish(frame.reset_index(drop=True), name, cfg.units)
+            layers[name] = finish(frame.reset_index(drop=True), name, units)
     return layers
 
 

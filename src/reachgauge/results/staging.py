@@ -127,8 +127,8 @@ class RunOutputs:
 
     def write(self, run, cfg, parts) -> None:
         """Assemble every output of ``run`` in temporary files, the reaches' rows
-        from ``parts`` (``parts.layers(index)``) in reach order, then put them all
-        in place."""
+        from ``parts`` (``parts.layers(header)``) in reach order, then put them
+        all in place."""
         from reachgauge.results.run_info import created_utc, run_info
 
         current = self.out
@@ -138,8 +138,8 @@ class RunOutputs:
             with _gpkg_date(created):
                 writer = gp.LayerWriter(self._stage(self.out), run.network.source_crs, cfg.units,
                                         csv=csv)
-                for index in sorted(h["index"] for h in run.headers):
-                    writer.add(parts.layers(index))
+                for header in run.headers:      # in reach order
+                    writer.add(parts.layers(header))
                 writer.close({"run_info": run_info(run, cfg, created)})
             if self.report is not None:
                 from reachgauge.results.report import read_result, render_report
