@@ -241,7 +241,7 @@ def split_text(t: dict | None) -> str:
         return f"{100 * a / b:.0f}%" if b > 0 else "n/a"
 
     return (f"read {g['read']:.2f} s, compute {g['compute']:.2f} s (both summed over workers; "
-            f"read {share(g['read'], busy)} of their sum), keep (parent, checkpoint) "
+            f"read {share(g['read'], busy)} of their sum), keep (shaping rows, checkpoint parts) "
             f"{g['keep']:.2f} s, write {g['write']:.2f} s "
             f"({share(g['write'], g['wall'])} of the run's wall {g['wall']:.2f} s)")
 

@@ -10,6 +10,7 @@ machine's disk: they shape the rows and send them back (``folder`` None).
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass
 
 
@@ -22,6 +23,7 @@ class Kept:
     header: dict
     layers: dict | None
     output: object
+    seconds: float = 0.0     # shaping the rows and writing the part
 
 
 @dataclass(frozen=True)
@@ -39,11 +41,12 @@ class Keeper:
         from reachgauge.batch.summary import tally
         from reachgauge.results.layers import reach_layers
 
+        t0 = time.perf_counter()
         header = tally(out)
         layers = reach_layers(out, reach.geometry, self.units, self.work_crs, self.source_crs)
         light = type(out)(out.reach_id, None, out.reach_row, error=out.error,
                           seconds=out.seconds, read_seconds=out.read_seconds)
         if self.folder is None:
-            return Kept(header, layers, light)
+            return Kept(header, layers, light, time.perf_counter() - t0)
         write_part(self.folder, header, layers)
-        return Kept(header, None, light)
+        return Kept(header, None, light, time.perf_counter() - t0)

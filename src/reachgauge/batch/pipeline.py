@@ -196,14 +196,13 @@ def compute(cfg: RunConfig, net=None, shared=None, sink=None, done=None,
         if kept.layers is not None:
             sink.add(kept.header, kept.layers)
         headers[kept.header["reach_id"]] = kept.header
-        timings["keep"] += time.perf_counter() - t1
+        timings["keep"] += kept.seconds + time.perf_counter() - t1
         timings["task"] += kept.output.seconds
         timings["read"] += kept.output.read_seconds
         if progress:
             progress(kept.output, len(headers), total)
-    # read: the terrain windows; compute: the rest of the tasks, shaping and
-    # keeping the rows included (both summed over workers); keep: the run's own
-    # process putting rows sent back into the checkpoint
+    # read: the terrain windows; compute: the rest of the reach's work; keep:
+    # shaping its rows and writing its checkpoint part (all summed over workers)
     timings["compute"] = timings.pop("task") - timings["read"]
     ordered = sorted(headers.values(), key=lambda h: order[h["reach_id"]])
     outcome.check_outputs([h["reach_row"] for h in ordered], net, cfg)

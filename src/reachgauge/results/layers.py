@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+from pandas.api.types import infer_dtype
 
 from reachgauge.results import schema
 
@@ -33,7 +34,8 @@ def typed(df: pd.DataFrame, fields: dict) -> pd.DataFrame:
     """``df`` with one storage type per field kind, whatever the values of this
     batch: text as text ('' for none), flags as nullable booleans, counts as
     nullable integers, every other kind as float. Columns outside the schema are
-    kept, as text when they hold objects."""
+    kept, as text when they hold objects. Columns already of their type are not
+    copied (a run converts millions of values)."""
     out = {}
     for col in df.columns:
         s = df[col]
@@ -41,16 +43,18 @@ def typed(df: pd.DataFrame, fields: dict) -> pd.DataFrame:
         if col == "geometry":
             out[col] = s
         elif kind == "text" or (kind is None and s.dtype == object):
-            out[col] = s.where(s.notna(), "").astype(str)
+            out[col] = s if infer_dtype(s, skipna=False) == "string" else \
+                s.where(s.notna(), "").astype(str)
         elif kind == "flag":
             out[col] = _booleans(s)
         elif kind == "count":
-            out[col] = pd.to_numeric(s, errors="coerce").round().astype("Int64")
+            out[col] = s.astype("Int64") if s.dtype.kind in "iu" else \
+                pd.to_numeric(s, errors="coerce").round().astype("Int64")
         elif kind is not None:
-            out[col] = pd.to_numeric(s, errors="coerce").astype(float)
+            out[col] = s if s.dtype == np.float64 else pd.to_numeric(s, errors="coerce").astype(float)
         else:
             out[col] = s
-    frame = pd.DataFrame(out, index=df.index)
+    frame = pd.DataFrame(out, index=df.index, copy=False)
     if hasattr(df, "geometry"):
         import geopandas as gpd
 
@@ -61,6 +65,9 @@ def typed(df: pd.DataFrame, fields: dict) -> pd.DataFrame:
 def _booleans(s: pd.Series) -> pd.Series:
     if s.dtype == bool:
         return s.astype("boolean")
+    if s.dtype.kind in "iuf":         # 0/1 with NaN for none
+        v = s.to_numpy(dtype=float)
+        return pd.Series(pd.arrays.BooleanArray(v != 0, np.isnan(v)), index=s.index)
     v = s.to_numpy(dtype=object)
     missing = pd.isna(v)
     # 'True'/'False' text (from a CSV round trip) reads as what it says
@@ -74,7 +81,7 @@ def finish(df: pd.DataFrame, name: str, units: str) -> pd.DataFrame:
     # every schema column in every batch: the first batch fixes the layer's fields
     df = df.assign(**{k: (None if kind == "text" else np.nan) for k, (kind, _m) in fields.items()
                       if k not in df.columns})
-    out = schema.column_order(schema.to_units(df, fields, units), fields)
+    out = schema.column_order(df if units == "si" else schema.to_units(df, fields, units), fields)
     if hasattr(df, "geometry"):
         import geopandas as gpd
 
