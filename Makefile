@@ -26,6 +26,8 @@ bench: $(STAMP)
 	$(BIN)/python benchmarks/bench_slope.py
 	$(BIN)/python benchmarks/bench_batch.py
 	$(BIN)/python benchmarks/bench_speed.py
+	$(BIN)/python benchmarks/bench_region.py
+	$(BIN)/python benchmarks/bench_memory.py
 
 clean:
 	rm -rf $(VENV) demo_output .pytest_cache .hypothesis

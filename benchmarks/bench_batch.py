@@ -22,7 +22,7 @@ cfg = RunConfig(dem=sys.argv[2], streams=sys.argv[3], half_width=30.0, jobs=int(
 t = time.perf_counter()
 run = compute(cfg)
 dt = time.perf_counter() - t
-n = sum(len(o.result.transects) for o in run.outputs if o.result is not None)
+n = sum(h["tally"]["transects"] for h in run.headers)
 # VmHWM: this process's own peak resident memory (ru_maxrss would carry the
 # parent's peak across fork and exec)
 hwm = next(l for l in open("/proc/self/status") if l.startswith("VmHWM")).split()[1]
