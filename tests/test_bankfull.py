@@ -194,6 +194,24 @@ def test_method_without_a_break_falls_back_to_the_median_of_the_others():
 
 
 # ---------------------------------------------------------------- user-given depths
+def test_pick_whose_water_reaches_a_transect_end_is_at_end_though_its_bank_top_is_not():
+    # random ground (a Hypothesis finding of test_bankfull_regression.py): the
+    # min-width-depth stage is the elevation of the first point, so the water at it
+    # reaches the transect's start (closed form: z[0] = stage). The fitted bank top
+    # lies well inside; break-at-end asks where the water's edge is, not the bank top
+    # (its flag text: the bank may lie beyond the transect)
+    z = np.array([
+        1.7, 1.5, 1.3, 1.2, 0.9, 1.2, 1.2, 1.4, 1.4, 1.3, 1.4, 1.2, 0.7, 0.5, 0.2, 0.2,
+        0.6, 0.4, 0.4, 0.5, 0.6, 0.8, 1.1, 1.2, 1.3, 1.3, 1.2, 1.4, 1.4, 1.2, 1.5, 1.4,
+        1.3, 1.7, 1.0, 1.3, 1.7, 1.6, 1.7, 1.6, 1.4, 1.5, 1.4, 1.2, 1.4, 1.6, 1.4, 0.8,
+        1.5, 1.5, 1.7, 2.1, 1.8, 1.9, 1.5, 1.8, 1.3, 1.5, 1.1, 1.2, 1.2, 1.3, 1.0, 1.7,
+        2.0, 1.5, 1.9, 2.4])
+    pick = pick_bankfull(CrossSection(np.arange(z.size, dtype=float), z), "min-width-depth")
+    assert pick.source == "min-width-depth" and pick.stage == z[0]
+    assert pick.left_bank > 3.0                  # the bank top: more than 3 steps in
+    assert "break-at-end" in pick.flags and pick.confidence == "low"
+
+
 def test_fixed_depth_on_a_trapezoid_closed_form_edges():
     syn = compound_channel()           # channel: b = 6, z = 1.5, centre at offset 36.25
     d = 1.0

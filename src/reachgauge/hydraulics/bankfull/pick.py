@@ -200,7 +200,12 @@ def _banks_and_flat(p, cand, stage, rise, user, blur=None):
     bank tops of :func:`~reachgauge.hydraulics.bankfull.banks.bank_tops` (a
     least-squares fit of each bank face, extrapolated to the stage, corrected for
     the sampling ``blur``), no further out than the water's edges half a break rise
-    below the stage, where the water has not yet run out over the plain."""
+    below the stage, where the water has not yet run out over the plain.
+
+    Returns the left and right banks, the flat-thalweg test and the water's edges
+    (t, 2) at ``at`` (the stage, or half a break rise below an automatic one): the
+    edges :func:`_at_end` tests, since a fitted bank top lies inside them and can
+    sit well away from a transect end the water itself has reached."""
     at = stage if user else np.maximum(p.thalweg, stage - 0.5 * rise)
     bank_top = cand[:, 0]
     alt = np.where(np.isfinite(bank_top), bank_top, p.top)
@@ -209,10 +214,11 @@ def _banks_and_flat(p, cand, stage, rise, user, blur=None):
     width = w.top_width[:, 0]
     # the width at the pick, or where there is none the width at the bank top
     channel = np.where(width > 0, width, w.top_width[:, 1])
-    edges = np.column_stack([w.left_edge[:, 0], w.right_edge[:, 0]])
+    water = np.column_stack([w.left_edge[:, 0], w.right_edge[:, 0]])
+    edges = water
     if not user:
-        edges = banks.bank_tops(p, np.where(ok, stage, p.thalweg), edges, blur)
-    return edges[:, 0], edges[:, 1], baseflow.flat_rows(p, channel)
+        edges = banks.bank_tops(p, np.where(ok, stage, p.thalweg), water, blur)
+    return edges[:, 0], edges[:, 1], baseflow.flat_rows(p, channel), water
 
 
 def _pick(p: K.Profiles, method, user_depth=None, tolerance=None, sigma=None, floor=None,
@@ -236,9 +242,9 @@ def _pick(p: K.Profiles, method, user_depth=None, tolerance=None, sigma=None, fl
         agree = np.all(~found | (np.abs(cand - stage[:, None]) <= tol[:, None]), axis=1)
     disagree = (n_found > 0) & ~agree
     few = (2 * n_found <= len(AUTOMATIC_METHODS)) & ~missed
-    left, right, flat = _banks_and_flat(p, cand, stage, sc.rise, user, blur)
+    left, right, flat, water = _banks_and_flat(p, cand, stage, sc.rise, user, blur)
     added = np.zeros(p.count, bool) if added is None else np.asarray(added, dtype=bool)
-    at_end = _at_end(p, left, right, sc.min_run) & ~missed & ~user
+    at_end = _at_end(p, water[:, 0], water[:, 1], sc.min_run) & ~missed & ~user
     bits = (missed * 1 + spills * 2 + disagree * 4 + few * 8 + flat * 16 + added * 32
             + at_end * 64)
     # none: a fallback, no pick of the method's own; low: a pick that stands alone, sits
@@ -260,9 +266,11 @@ def _pick(p: K.Profiles, method, user_depth=None, tolerance=None, sigma=None, fl
 
 
 def _at_end(p, left, right, min_run):
-    """A bank of the pick within ``min_run`` (m, three sample steps) of an end of the
-    profile: the water's edge the pick rests on may lie beyond the transect, so the
-    break may be the water leaving the transect rather than a floodplain."""
+    """A water's edge of the pick (``left``, ``right``: offsets m, for an automatic
+    pick half a break rise below its stage, not the fitted bank tops) within
+    ``min_run`` (m, three sample steps) of an end of the profile: the water's edge
+    the pick rests on may lie beyond the transect, so the break may be the water
+    leaving the transect rather than a floodplain."""
     with np.errstate(invalid="ignore"):
         return ((left - p.first_offset) <= min_run) | ((p.last_offset - right) <= min_run)
 
@@ -325,7 +333,8 @@ def pick_bankfull(section: CrossSection, method: str = DEFAULT_METHOD, *, fixed_
     found breaks agree with the stage within the tolerance; "medium" when the chosen
     stage rests on a clear break but some method disagrees ("methods-disagree");
     "low" when half or more of the automatic methods found no break though the chosen
-    one did ("break-unconfirmed"), a bank of the pick lies at an end of the transect
+    one did ("break-unconfirmed"), a water's edge of the pick (half a break rise
+    below the stage) lies within three sample steps of an end of the transect
     ("break-at-end"), or the section spills over an end of the profile first
     ("spills-first"); "none" when the chosen automatic method found no floodplain
     break ("no-clear-break"): the stage is then a fallback, not a bankfull figure.
