@@ -77,8 +77,9 @@ FLAGS = {
     # appended by the no-channel change (issue 9)
     "break-unconfirmed": "the chosen method found a break but fewer than half of the automatic "
                          "methods found one: low confidence, left out of the reach's medians",
-    "break-at-end": "a bank of the pick lies at an end of the transect: the bank may lie beyond "
-                    "it (widen with --half-width); low confidence, left out of the reach's "
+    "break-at-end": "the water edge of the pick lies at an end of the transect: the bank may "
+                    "lie beyond it (widen with --half-width); low confidence, left out of the "
+                    "reach's "
                     "medians",
     "supercritical": "Froude number above 1 at bankfull, rare in natural channels over a reach: "
                      "check the slope, n and the section",
