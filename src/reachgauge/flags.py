@@ -79,8 +79,7 @@ FLAGS = {
                          "methods found one: low confidence, left out of the reach's medians",
     "break-at-end": "the water edge of the pick lies at an end of the transect: the bank may "
                     "lie beyond it (widen with --half-width); low confidence, left out of the "
-                    "reach's "
-                    "medians",
+                    "reach's medians",
     "supercritical": "Froude number above 1 at bankfull, rare in natural channels over a reach: "
                      "check the slope, n and the section",
     "zero-depth": "the bankfull stage is not above the thalweg, or the channel between the "
