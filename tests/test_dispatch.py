@@ -22,7 +22,7 @@ import pandas as pd
 import pytest
 
 from reachgauge.api import configure
-from reachgauge.batch import dispatch, pipeline, task
+from reachgauge.batch import dispatch, shared as shared_mod, task
 from reachgauge.errors import InputError
 from reachgauge.inputs import network as network_mod
 
@@ -39,7 +39,7 @@ def basin(tmp_path_factory):
     cowan.write_text("\n".join(r for r in rows if not r.startswith(("N1", "S1"))) + "\n")
     cfg = configure(BASIN / "config.toml", cowan=cowan)
     net = network_mod.load_network(cfg)
-    shared = pipeline.read_shared_inputs(cfg, net)
+    shared = shared_mod.read_shared_inputs(cfg, net)
     serial = run(cfg, net, shared)
     assert len(serial) == 5 and all(o.result is not None for o in serial.values())
     return cfg, net, shared, serial
@@ -117,7 +117,7 @@ def test_the_window_bounds_tasks_in_flight_and_builds_arguments_as_it_goes(basin
                 counts["worst"] = max(counts["worst"], counts["submitted"] - counts["yielded"])
             return super().submit(fn, *args)
 
-    class CountingShared(pipeline.SharedInputs):
+    class CountingShared(shared_mod.SharedInputs):
         def for_reach(self, reach):
             counts["built"] += 1
             counts["worst_built"] = max(counts["worst_built"], counts["built"] - counts["yielded"])

@@ -168,6 +168,7 @@ def test_a_resume_with_a_changed_input_is_refused(valley, tmp_path, capsys):
     dem, streams, flows = valley
     out = tmp_path / "r.gpkg"
     folder = _interrupted(valley, out)
+    before = _state(folder)
     capsys.readouterr()
     other = tmp_path / "flows.csv"
     other.write_text(Path(flows).read_text().replace("3.0", "4.0"))
@@ -176,6 +177,7 @@ def test_a_resume_with_a_changed_input_is_refused(valley, tmp_path, capsys):
     assert main(a) == 2
     err = capsys.readouterr().err
     assert "cannot resume" in err and "input design_flows changed" in err
+    assert _state(folder) == before and not out.exists()
 
 
 def test_a_new_run_over_a_checkpoint_and_a_resume_without_one_are_refused(valley, tmp_path,

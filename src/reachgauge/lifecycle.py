@@ -283,7 +283,8 @@ def _unlink(p) -> None:
         pass
 
 
-def _alive(pid: int) -> bool:
+def alive(pid: int) -> bool:
+    """Whether process ``pid`` exists (someone else's counts)."""
     try:
         os.kill(pid, 0)
     except ProcessLookupError:
@@ -331,7 +332,7 @@ def clean_stale(folder) -> list[Path]:
                 removed += _remove_all(folder, [lock])
             finally:
                 os.close(fd)
-        elif not _alive(int(token.split("-")[0])):
+        elif not alive(int(token.split("-")[0])):
             removed += _remove_all(folder, files)
     return removed
 

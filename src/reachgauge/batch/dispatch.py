@@ -45,7 +45,7 @@ from reachgauge.batch.task import ReachOutput, close_rasters, run_task
 from reachgauge.errors import InputError
 
 if TYPE_CHECKING:
-    from reachgauge.batch.pipeline import SharedInputs
+    from reachgauge.batch.shared import SharedInputs
     from reachgauge.config import RunConfig
 
 WINDOW_PER_WORKER = 2    # one task running and one waiting per worker: none idles between tasks
@@ -169,21 +169,11 @@ def _worker_started(run_pid: int) -> None:
         if fd is not None:
             select.select([fd], [], [])   # readable once the process has ended
         else:
-            while _alive(run_pid):
+            while lifecycle.alive(run_pid):
                 time.sleep(0.5)
         os._exit(1)
 
     threading.Thread(target=watch, name="reachgauge-run-watch", daemon=True).start()
-
-
-def _alive(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:
-        return True
-    return True
 
 
 def pool(workers: int):
