@@ -88,6 +88,20 @@ def test_the_file_is_the_same_whatever_the_executor(valley, reference, tmp_path)
     assert sha(out) == sha(reference)
 
 
+def test_the_file_is_the_same_on_a_dask_cluster(valley, reference, tmp_path, monkeypatch):
+    """A real LocalCluster of two worker processes on loopback: the workers shape
+    the rows and send them back (they may not share the run's disk)."""
+    distributed = pytest.importorskip("dask.distributed")
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", EPOCH)
+    out = tmp_path / "dask.gpkg"
+    with distributed.LocalCluster(n_workers=2, processes=True, threads_per_worker=1,
+                                  host="127.0.0.1", dashboard_address=None) as cluster:
+        code = main([str(a) for a in args(valley, out, "--quiet", "--scheduler",
+                                          cluster.scheduler_address)])
+    assert code == 0
+    assert sha(out) == sha(reference)
+
+
 def test_a_killed_run_resumes_to_the_uninterrupted_result(valley, reference, tmp_path):
     out = tmp_path / "r.gpkg"
     cmd = [str(EXE)] + [str(a) for a in args(valley, out)]
