@@ -141,6 +141,16 @@ class Checkpoint:
             return pickle.load(fh)
 
 
+def discard(out) -> None:
+    """Remove the checkpoint of ``out`` unless a live run uses it (for runs that
+    always start over, such as the demo)."""
+    import shutil
+
+    f = folder_for(out)
+    if f.is_dir() and not lifecycle.in_use(f):
+        shutil.rmtree(f, ignore_errors=True)
+
+
 def part_path(folder, reach_id: str) -> Path:
     """The part of a reach: named by a digest of its id (ids may hold any character)."""
     return Path(folder) / f"reach-{hashlib.sha256(str(reach_id).encode()).hexdigest()[:24]}.pkl"

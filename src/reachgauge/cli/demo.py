@@ -47,6 +47,9 @@ def run(args) -> int:
             raise write_failed(args.out, exc) from None
     gpkg = args.out / "demo_result.gpkg"
     html = args.out / "demo_report.html"
+    from reachgauge.batch.checkpoint import discard
+
+    discard(gpkg)          # the demo always starts over: an interrupted one is not resumed
     summary = api.run(gpkg, config=cfg_path, jobs=args.jobs, overwrite=True, report=html,
                       progress=Progress(quiet=args.quiet))
     if not args.quiet:
