@@ -240,8 +240,11 @@ class LayerWriter:
         if isinstance(frame, gpd.GeoDataFrame) and frame.crs is None:
             frame = frame.set_crs(self.crs)
         first = name not in self.created
-        pyogrio.write_dataframe(_plain_types(frame), self.path, layer=name, driver="GPKG",
-                                use_arrow=True, append=not first)
+        if first:
+            _create_layer(self.path, name, _plain_types(frame), self.units)
+        else:
+            pyogrio.write_dataframe(_plain_types(frame), self.path, layer=name, driver="GPKG",
+                                    use_arrow=True, append=True)
         if name in self.csv:
             csv_frame(frame).to_csv(self.csv[name], mode="w" if first else "a", header=first,
                                     index=False, float_format="%.6g")
@@ -249,3 +252,44 @@ class LayerWriter:
             lifecycle.checkpoint("writing")
         self.created.add(name)
         self.rows[name] = self.rows.get(name, 0) + len(frame)
+
+
+def _create_layer(path, name: str, frame, units: str) -> None:
+    """Create layer ``name`` with its first rows, its description in
+    ``gpkg_contents`` and a title and description of every schema field (with
+    its unit) in ``gpkg_data_columns``, the OGC GeoPackage schema extension
+    (http://www.geopackage.org/spec/#extension_schema), which desktop GIS show
+    beside the fields. GDAL writes both: the layer's DESCRIPTION option and the
+    ``GDAL:OGR:comment`` / ``GDAL:OGR:alternative_name`` metadata of the Arrow
+    fields (https://gdal.org/en/stable/drivers/vector/gpkg.html)."""
+    import geopandas as gpd
+    import pyarrow as pa
+    import pyogrio
+
+    from reachgauge.results import schema
+    from reachgauge.results.layers import LAYERS
+
+    fields = LAYERS[name][0] if name in LAYERS else {}
+    geo = isinstance(frame, gpd.GeoDataFrame)
+    if geo:
+        table = pa.table(frame.to_arrow(index=False, geometry_encoding="WKB"))
+    else:
+        table = pa.Table.from_pandas(pd.DataFrame(frame), preserve_index=False)
+    described = []
+    for f in table.schema:
+        meta = dict(f.metadata or {})
+        if f.name in fields:
+            unit = schema.unit_of(fields, f.name, units)
+            meaning = fields[f.name][1] + (f" ({unit})" if unit else "")
+            meta[b"GDAL:OGR:comment"] = meaning.encode()
+            meta[b"GDAL:OGR:alternative_name"] = f.name.replace("_", " ").encode()
+        described.append(f.with_metadata(meta or None))
+    table = table.cast(pa.schema(described)).replace_schema_metadata(None)
+    kw = {}
+    if geo:
+        kinds = set(frame.geom_type.dropna())
+        kw = dict(geometry_name="geometry", crs=frame.crs.to_wkt() if frame.crs else None,
+                  geometry_type=kinds.pop() if len(kinds) == 1 else "Unknown")
+    note = schema.LAYER_NOTES.get(name, "")
+    pyogrio.write_arrow(table, path, layer=name, driver="GPKG",
+                        layer_options={"DESCRIPTION": note} if note else None, **kw)
