@@ -117,15 +117,19 @@ def test_existing_output_is_never_overwritten_without_flag(valley, tmp_path, cap
 def test_a_failed_write_leaves_no_file(valley, tmp_path, monkeypatch):
     out = tmp_path / "r.gpkg"
     calls = {"n": 0}
-    real = pyogrio.write_dataframe
 
-    def failing(*a, **k):
-        calls["n"] += 1
-        if calls["n"] == 3:
-            raise KeyboardInterrupt  # the user pressed Ctrl-C mid-write
-        return real(*a, **k)
+    def failing(real):
+        def write(*a, **k):
+            calls["n"] += 1
+            if calls["n"] == 3:
+                raise KeyboardInterrupt  # the user pressed Ctrl-C mid-write
+            return real(*a, **k)
+        return write
 
-    monkeypatch.setattr(pyogrio, "write_dataframe", failing)
+    # a layer is created by write_arrow (with its field descriptions), appended to
+    # by write_dataframe: the third write of either kind is interrupted
+    for fn in ("write_dataframe", "write_arrow"):
+        monkeypatch.setattr(pyogrio, fn, failing(getattr(pyogrio, fn)))
     code = run(base_args(valley, out))
     assert code == 130
     assert not out.exists()
