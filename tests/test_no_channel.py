@@ -401,6 +401,16 @@ def test_every_flag_has_a_severity():
     assert "| `closed-hollow` | do not use |" in table
 
 
+def test_the_gravest_flag_of_a_section_sets_its_count():
+    # the run's summary counts sections by their gravest flag; design-flow results
+    # (out-of-bank, over-profile, stage-at-jump) are results, not doubts
+    assert flags.worst("") is None
+    assert flags.worst("out-of-bank;over-profile") is None
+    assert flags.worst("shortened;out-of-bank") == "information"
+    assert flags.worst("shortened;methods-disagree") == "check"
+    assert flags.worst("methods-disagree;zero-depth;shortened") == "do not use"
+
+
 def test_withheld_transects_are_left_out_of_the_reach_figures(tmp_path):
     # a clear channel whose downstream third runs into a V gully: the gully's sections
     # get no figure and the reach's medians are those of the channel's trusted picks

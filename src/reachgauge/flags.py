@@ -128,6 +128,14 @@ def has_quality_flag(text) -> bool:
     return any(c and c not in CAPACITY_FLAGS for c in str(text or "").split(";"))
 
 
+def worst(text) -> str | None:
+    """The gravest severity among the flags of a ';'-joined string, leaving out
+    the design-flow results (:data:`CAPACITY_FLAGS`); None when there is none."""
+    ranks = [SEVERITIES.index(severity(c)) for c in str(text or "").split(";")
+             if c and c not in CAPACITY_FLAGS]
+    return SEVERITIES[max(ranks)] if ranks else None
+
+
 def join(codes) -> str:
     """Join flag codes (any iterable, duplicates and blanks dropped) as 'a;b'."""
     seen = []
