@@ -171,8 +171,8 @@ CASES = [
     ("split-shorter-than-spacing", plus("--split-length", "10"), 2,
      "every piece would be too short"),
     # -- long options only in full
-    ("abbreviation-of-a-future-option", plus("--drainage-area", "terrain"), 2,
-     "unrecognized arguments: --drainage-area"),
+    ("abbreviation-of-a-future-option", plus("--drainage-area-f", "da"), 2,
+     "unrecognized arguments: --drainage-area-f"),
     ("abbreviation-of-an-option", plus("--spac", "10"), 2, "unrecognized arguments: --spac"),
     # -- measured flows that cannot be matched truthfully
     ("observation-stage-below-ground", obs("reach_id,chainage,stage,discharge\nA,150,-17.0,2\n"),

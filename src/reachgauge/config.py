@@ -101,6 +101,19 @@ class RunConfig:
     regional_exp: float | None = _f(None, "bankfull", "regional curve exponent", range=(0, 2))
     drainage_area_field: str | None = _f(None, "bankfull", "field holding drainage area in km² "
                                          "(mi² with --units us)")
+    # ---------------------------------------------------------------- drainage
+    drainage_area: Path | str | None = _f(None, "drainage",
+                                          "drainage area of every transect and reach: 'terrain' "
+                                          "(routed from the terrain raster) or a flow-accumulation "
+                                          "raster on the terrain's grid (default: "
+                                          "--drainage-area-field, per reach)")
+    accumulation_unit: str = _f("cells", "drainage",
+                                "unit of a flow-accumulation raster: cells (contributing cells, "
+                                "the cell itself included) or km2", choices=("cells", "km2"))
+    drainage_coarsen: int | None = _f(None, "drainage",
+                                      "with --drainage-area terrain, route a copy of the terrain "
+                                      "averaged F × F cells into one (less memory, coarser areas)",
+                                      range=(1, 1000), closed=True)
     baseflow_depth: float = _f(0.0, "bankfull",
                                "depth of water under a flat water surface in the terrain to add "
                                "back (flat sections only)",
@@ -162,6 +175,8 @@ def location(value):
 # the settings that name input files
 PATH_FIELDS = tuple(f.name for f in dataclasses.fields(RunConfig) if "Path" in str(f.type))
 FIELDS = {f.name: f for f in dataclasses.fields(RunConfig)}
+# words a path setting takes instead of a file (--drainage-area terrain)
+KEYWORDS = ("terrain",)
 
 
 def fields_by_group():
@@ -195,7 +210,7 @@ def read_toml(path) -> dict:
     # relative paths in a config file are relative to the file
     for key in PATH_FIELDS:
         if (isinstance(flat.get(key), str) and not remote_location(flat[key])
-                and not Path(flat[key]).is_absolute()):
+                and not Path(flat[key]).is_absolute() and flat[key] not in KEYWORDS):
             flat[key] = str(p.parent / flat[key])
     return flat
 

@@ -92,6 +92,9 @@ FLAGS = {
     "isolated-pick": "neither neighbouring transect shows a bankfull pick: a local feature "
                      "(a hollow's rim, a ditch, a pit) rather than a channel; low confidence, "
                      "left out of the reach's medians",
+    # appended by the drainage-area change (issue 12)
+    "area-lower-bound": "the watershed of the drainage area reaches the raster's edge or nodata: "
+                        "water may come from beyond, the area is only a lower bound",
 }
 
 SEVERITIES = ("information", "check", "do not use")
@@ -106,7 +109,7 @@ SEVERITY = {
     "n-unusual": "check", "n-unknown-class": "check", "water-surface": "information",
     "reshaped-profile": "check", "break-unconfirmed": "check", "break-at-end": "check",
     "supercritical": "check", "zero-depth": "do not use", "closed-hollow": "do not use",
-    "off-channel": "do not use", "isolated-pick": "check",
+    "off-channel": "do not use", "isolated-pick": "check", "area-lower-bound": "check",
 }
 
 # flags that withhold a transect's bankfull figures

@@ -198,9 +198,14 @@ def validate(cfg, origin: dict | None = None) -> None:
         raise InputError("bankfull method fixed-depth needs --bankfull-depth",
                          "give --bankfull-depth D")
     if cfg.bankfull_method == "regional" and (cfg.regional_coef is None or cfg.regional_exp is None
-                                              or cfg.drainage_area_field is None):
+                                              or (cfg.drainage_area_field is None
+                                                  and cfg.drainage_area is None)):
         raise InputError("bankfull method regional needs --regional-coef, --regional-exp and "
-                         "--drainage-area-field", "give all three, or pick another method")
+                         "--drainage-area-field or --drainage-area",
+                         "give all three, or pick another method")
+    if cfg.drainage_coarsen not in (None, 1) and cfg.drainage_area is None:
+        raise InputError("--drainage-coarsen needs --drainage-area terrain",
+                         "add --drainage-area terrain, or leave --drainage-coarsen out")
     if (cfg.landcover is None) != (cfg.landcover_table is None):
         raise InputError("--landcover and --landcover-table go together",
                          "give both the land-cover raster and its class-to-n CSV")

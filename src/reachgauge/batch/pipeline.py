@@ -87,6 +87,9 @@ def compute(cfg: RunConfig, net=None, shared=None, sink=None, done=None,
         outcome.check_network(net, cfg)      # every reach unusable for one cause: exit 2 now
     shared = shared if shared is not None else read_shared_inputs(cfg, net)
     sink = sink if sink is not None else KeptInMemory()
+    # issue 12: the drainage-area raster, routed once here (kept in the checkpoint folder)
+    from reachgauge.drainage import attach
+    shared, _drainage_tmp = attach(cfg, net, shared, sink.folder)
     headers = dict(done or {})
     order = {str(r.reach_id): i for i, r in enumerate(net.reaches)}
     todo = [r for r in net.reaches if str(r.reach_id) not in headers]

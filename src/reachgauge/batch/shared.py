@@ -24,6 +24,7 @@ class SharedInputs:
     observations: pd.DataFrame | None = None
     cowan: dict | None = None
     class_table: dict | None = None
+    drainage: object = None     # the run's reachgauge.drainage.DrainageSource
     _obs_groups: tuple | None = field(default=None, init=False, repr=False, compare=False)
 
     def for_reach(self, reach) -> hydraulics.ReachInputs:
@@ -43,7 +44,8 @@ class SharedInputs:
             obs = self._obs_groups[1].get(rid, self._obs_groups[2])
         cowan = {rid: self.cowan[rid]} if self.cowan and rid in self.cowan else None
         return hydraulics.ReachInputs(flows=dict(self.flows.get(rid, {})), observations=obs,
-                                      cowan=cowan, class_table=self.class_table)
+                                      cowan=cowan, class_table=self.class_table,
+                                      drainage_source=self.drainage)
 
 
 def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:

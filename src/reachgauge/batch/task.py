@@ -150,6 +150,11 @@ def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
             from reachgauge.inputs.landcover import classes_at
 
             inputs.classes = classes_at(landcover, rs.sample_points(), raster.work_crs)
+        if inputs.drainage_source is not None:   # issue 12: a window of the area raster
+            from reachgauge.drainage import at_transects
+
+            inputs.drainage = at_transects(inputs.drainage_source, rs.thalweg_xy,
+                                           cfg.snap_distance, raster.work_crs, raster.xy_factor)
         res = hydraulics.analyse_reach(rs, hydraulics.ReachParams.from_config(cfg), inputs)
         return ReachOutput(rid, res, res.reach, transect_lines=list(rs.transects),
                            thalweg_xy=np.asarray(rs.thalweg_xy), offsets=np.asarray(rs.offsets),

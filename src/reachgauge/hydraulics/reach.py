@@ -65,7 +65,9 @@ class ReachInputs:
     ``flows``: design flows {name: m³/s}; ``observations``: this reach's rows of
     :func:`reachgauge.inputs.tables.read_observations`; ``cowan``: Cowan terms by
     reach; ``classes``: (t, n) land-cover classes sampled on the transects;
-    ``class_table``: class → n.
+    ``class_table``: class → n; ``drainage_source``: where drainage area is read
+    (:class:`reachgauge.drainage.DrainageSource`); ``drainage``: the areas read at
+    the transects (:class:`reachgauge.drainage.AtTransects`).
     """
 
     flows: dict = field(default_factory=dict)
@@ -73,6 +75,8 @@ class ReachInputs:
     cowan: dict | None = None
     classes: np.ndarray | None = None
     class_table: dict | None = None
+    drainage_source: object = None    # the run's DrainageSource (reachgauge.drainage)
+    drainage: object = None           # its AtTransects for this reach's transects
 
 
 @dataclass
@@ -91,17 +95,43 @@ class ReachResult:
     offsets: np.ndarray = None        # (t, m) offsets of sections_z, NaN-padded
 
 
-def _drainage_area(params: ReachParams, rid, attributes):
+def _drainage_area(params: ReachParams, rid, attributes, at=None, t: int = 0):
+    """(reach area km² or None, per-transect columns, reach columns). From the
+    areas read at the transects (``at``, :class:`reachgauge.drainage.AtTransects`):
+    the reach's is the largest of its transects' (its downstream end; the largest
+    rather than the last transect's, which may lack a thalweg), a lower bound when
+    that transect's is. Else from the field, for the reach only."""
+    nan = np.full(t, np.nan)
+    if at is not None:
+        area = np.asarray(at.area_km2, float)
+        has = np.isfinite(area)
+        i = int(np.argmax(np.where(has, area, -np.inf))) if has.any() else -1
+        lower = bool(at.lower_bound[i]) if i >= 0 else False
+        reach = {"drainage_area": float(area[i]) if i >= 0 else np.nan,
+                 "drainage_source": at.source,
+                 "drainage_flags": "area-lower-bound" if lower else ""}
+        cols = ({"drainage_area": area, "drainage_snap": np.asarray(at.snap_m, float)},
+                np.asarray(at.lower_bound, bool))
+        if params.bankfull.method == "regional" and i < 0:
+            raise InputError(f"reach {rid}: no drainage area within the snapping distance of "
+                             "its thalweg", "check the drainage raster covers the reach")
+        return (reach["drainage_area"] if i >= 0 else None), cols, reach
+    v = float("nan")
+    if params.drainage_area_field:
+        try:
+            v = float(attributes.get(params.drainage_area_field)) * params.drainage_area_km2_per_unit
+        except (TypeError, ValueError):
+            v = float("nan")
+    cols = ({"drainage_area": nan, "drainage_snap": nan}, np.zeros(t, bool))
+    reach = {"drainage_area": v if np.isfinite(v) and v > 0 else np.nan,
+             "drainage_source": "field" if params.drainage_area_field else "",
+             "drainage_flags": ""}
     if params.bankfull.method != "regional":
-        return None
-    try:
-        v = float(attributes.get(params.drainage_area_field))
-    except (TypeError, ValueError):
-        v = float("nan")
+        return None, cols, reach
     if not (np.isfinite(v) and v > 0):
         raise InputError(f"reach {rid}: drainage-area field {params.drainage_area_field!r} has "
                          "no positive value", "fill the field, or pick another bankfull method")
-    return v * params.drainage_area_km2_per_unit
+    return v, cols, reach
 
 
 def _bankfull_figures(p, picks, slope, n, ok):
@@ -186,7 +216,8 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     slope = np.asarray(rs.slope, dtype=float)
     slope = np.where(np.isfinite(slope) & (slope > 0), slope, params.min_slope)
 
-    area_km2 = _drainage_area(params, rid, reach.attributes)
+    area_km2, (da_cols, da_lower), da_reach = _drainage_area(params, rid, reach.attributes,
+                                                             inputs.drainage, t)
     ok = np.asarray(rs.transect_status, dtype=object) == "ok"
     z = np.where(ok[:, None], np.asarray(rs.elevations, dtype=float), np.nan)
     # the sections are sampled from the raster: the bank tops are corrected for that blur
@@ -226,14 +257,15 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     out_any, over_any, jump_any, flows_out = _flow_results(checks, t)
     columns = tru.columns() + [
         ("bankfull-outlier", outlier), ("n-unknown-class", unknown), ("n-unusual", unusual),
-        ("out-of-bank", out_any), ("over-profile", over_any), ("stage-at-jump", jump_any)]
+        ("out-of-bank", out_any), ("over-profile", over_any), ("stage-at-jump", jump_any),
+        ("area-lower-bound", da_lower)]
     codes = flags.concat(np.asarray(rs.transect_flags, dtype=object).reshape(t), picks.codes)
     start = _line_start(rs, t)
     tr = pd.DataFrame({
         "reach_id": rid, "station": np.arange(t), "chainage": np.asarray(rs.chainage, float),
         "status": np.asarray(rs.transect_status, dtype=object), "flags": "",
         "thalweg_z": _thalweg_z(rs, p, ok), "thalweg_shift": np.asarray(rs.thalweg_shift, float),
-        "slope": slope,
+        "slope": slope, **da_cols,
         # the method that gave the published stage; "none" where none is published
         "bankfull_method": np.where(pub, picks.source, np.where(ok, "none", "")),
         "confidence": tru.confidence,
@@ -249,6 +281,7 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     tr = tr[[c for c in schema.TRANSECT_FIELDS if c in tr.columns]]
     reach_row = _reach_row(rs, tr, ok, use, summary, n, n_src, n_cal, outlier, reach_flows,
                            (status, message, int(tru.trusted.sum())))
+    reach_row.update(da_reach)
     profile = rs.profile.copy()
     profile.insert(0, "reach_id", rid)
     inside = np.arange(p.x.shape[1])[None, :] < p.size[:, None]

@@ -6,7 +6,8 @@ US customary units at the output edge: ``length`` (m | ft), ``area`` (m² |
 ft²), ``velocity`` (m/s | ft/s), ``discharge`` (m³/s | ft³/s), ``stress``
 (N/m² | lbf/ft²), ``power`` (W/m² | lbf/(ft·s)), ``n`` (Manning's n: s/m^(1/3)
 in both systems by convention, the unit constant k absorbing the change),
-``none`` (dimensionless), ``text``, ``flag`` (bool), ``count``.
+``drainage`` (drainage area: km² | mi², the units of the trade), ``none``
+(dimensionless), ``text``, ``flag`` (bool), ``count``.
 """
 
 from __future__ import annotations
@@ -18,15 +19,17 @@ from reachgauge.manning import FOOT
 
 # factor from SI to US customary for each kind
 TO_US = {"length": 1 / FOOT, "area": 1 / FOOT ** 2, "velocity": 1 / FOOT,
-         "discharge": 1 / FOOT ** 3, "stress": 0.020885434, "power": 0.068521766}
+         "discharge": 1 / FOOT ** 3, "stress": 0.020885434, "power": 0.068521766,
+         "drainage": 1 / 2.589988110336}
 # stress: 1 N/m² = 0.020885434 lbf/ft²; power: 1 W/m² = 0.068521766 lbf/(ft·s)
-# (standard conversion factors: 1 lbf = 4.4482216 N, 1 ft = 0.3048 m)
+# (standard conversion factors: 1 lbf = 4.4482216 N, 1 ft = 0.3048 m); drainage:
+# 1 mi² = 2.589988110336 km² exactly (the international mile, 1609.344 m)
 
 UNIT_LABELS = {
     "si": {"length": "m", "area": "m²", "velocity": "m/s", "discharge": "m³/s", "stress": "N/m²",
-           "power": "W/m²", "n": "s/m^(1/3)"},
+           "power": "W/m²", "n": "s/m^(1/3)", "drainage": "km²"},
     "us": {"length": "ft", "area": "ft²", "velocity": "ft/s", "discharge": "ft³/s",
-           "stress": "lbf/ft²", "power": "lbf/(ft·s)", "n": "s/m^(1/3)"},
+           "stress": "lbf/ft²", "power": "lbf/(ft·s)", "n": "s/m^(1/3)", "drainage": "mi²"},
 }
 
 TRANSECT_FIELDS = {
@@ -38,6 +41,11 @@ TRANSECT_FIELDS = {
     "thalweg_z": ("length", "thalweg (lowest ground) elevation"),
     "thalweg_shift": ("length", "thalweg offset from the digitised centreline, + towards the right bank"),
     "slope": ("none", "slope used at this station (dimensionless)"),
+    "drainage_area": ("drainage", "drainage area: the largest contributing area within the "
+                                  "snapping distance of the thalweg (--drainage-area); empty "
+                                  "with a per-reach field"),
+    "drainage_snap": ("length", "distance from the thalweg to the cell whose drainage area was "
+                                "taken"),
     "bankfull_method": ("text", "method that gave the published bankfull stage; 'none' where no "
                                 "stage is published (the flags say why)"),
     "confidence": ("text", "confidence in the bankfull stage: high, medium, low, or none where "
@@ -95,6 +103,11 @@ REACH_FIELDS = {
                                    "transects"),
     "slope": ("none", "reach slope (fit over the whole reach)"),
     "slope_flags": ("text", "flags of the slope estimate"),
+    "drainage_area": ("drainage", "drainage area at the reach's downstream end: the largest of "
+                                  "its transects' areas, or the --drainage-area-field value"),
+    "drainage_source": ("text", "where the drainage area came from: terrain, raster or field"),
+    "drainage_flags": ("text", "area-lower-bound where the watershed of the reach's area "
+                               "leaves the raster"),
     "bankfull_depth": ("length", "median bankfull depth of the trusted picks"),
     "depth_spread": ("length", "interquartile range of the trusted picks' bankfull depths"),
     "top_width": ("length", "median bankfull top width of the trusted picks"),
