@@ -101,6 +101,10 @@ class RunConfig:
     regional_exp: float | None = _f(None, "bankfull", "regional curve exponent", range=(0, 2))
     drainage_area_field: str | None = _f(None, "bankfull", "field holding drainage area in km² "
                                          "(mi² with --units us)")
+    regional_curves: Path | None = _f(None, "bankfull",
+                                      "CSV of published regional curves to compare the reaches "
+                                      "with (name, variable, coefficient, exponent, units, "
+                                      "area_min, area_max)")
     baseflow_depth: float = _f(0.0, "bankfull",
                                "depth of water under a flat water surface in the terrain to add "
                                "back (flat sections only)",

@@ -92,6 +92,9 @@ FLAGS = {
     "isolated-pick": "neither neighbouring transect shows a bankfull pick: a local feature "
                      "(a hollow's rim, a ditch, a pit) rather than a channel; low confidence, "
                      "left out of the reach's medians",
+    # appended by the regional-curves change (issue 12): a reach flag
+    "regional-outlier": "a bankfull figure of the reach lies outside the 95 % prediction band of "
+                        "the run's regional curve (regional_outside says which): check the reach",
 }
 
 SEVERITIES = ("information", "check", "do not use")
@@ -106,7 +109,7 @@ SEVERITY = {
     "n-unusual": "check", "n-unknown-class": "check", "water-surface": "information",
     "reshaped-profile": "check", "break-unconfirmed": "check", "break-at-end": "check",
     "supercritical": "check", "zero-depth": "do not use", "closed-hollow": "do not use",
-    "off-channel": "do not use", "isolated-pick": "check",
+    "off-channel": "do not use", "isolated-pick": "check", "regional-outlier": "check",
 }
 
 # flags that withhold a transect's bankfull figures

@@ -91,17 +91,26 @@ class ReachResult:
     offsets: np.ndarray = None        # (t, m) offsets of sections_z, NaN-padded
 
 
-def _drainage_area(params: ReachParams, rid, attributes):
-    if params.bankfull.method != "regional":
-        return None
+def drainage_area(params: ReachParams, attributes) -> float:
+    """The reach's drainage area (km²) from the drainage-area field, NaN where no
+    field is given or its value is not a positive number."""
+    if params.drainage_area_field is None:
+        return float("nan")
     try:
         v = float(attributes.get(params.drainage_area_field))
     except (TypeError, ValueError):
-        v = float("nan")
-    if not (np.isfinite(v) and v > 0):
+        return float("nan")
+    return v * params.drainage_area_km2_per_unit if np.isfinite(v) and v > 0 else float("nan")
+
+
+def _drainage_area(params: ReachParams, rid, attributes):
+    if params.bankfull.method != "regional":
+        return None
+    v = drainage_area(params, attributes)
+    if not np.isfinite(v):
         raise InputError(f"reach {rid}: drainage-area field {params.drainage_area_field!r} has "
                          "no positive value", "fill the field, or pick another bankfull method")
-    return v * params.drainage_area_km2_per_unit
+    return v
 
 
 def _bankfull_figures(p, picks, slope, n, ok):
@@ -249,6 +258,7 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     tr = tr[[c for c in schema.TRANSECT_FIELDS if c in tr.columns]]
     reach_row = _reach_row(rs, tr, ok, use, summary, n, n_src, n_cal, outlier, reach_flows,
                            (status, message, int(tru.trusted.sum())))
+    reach_row["drainage_area"] = drainage_area(params, reach.attributes)
     profile = rs.profile.copy()
     profile.insert(0, "reach_id", rid)
     inside = np.arange(p.x.shape[1])[None, :] < p.size[:, None]
