@@ -122,6 +122,15 @@ class PowerFit:
     def exponent(self) -> float:
         return self.line.slope if self.line else float("nan")
 
+    @property
+    def r_squared(self) -> float:
+        return self.line.r_squared if self.line else float("nan")
+
+    @property
+    def std_error(self) -> float:
+        """Standard error of the regression of ln y on ln A (natural log)."""
+        return self.line.std_error if self.line else float("nan")
+
     def predict(self, area, which: str = "mean"):
         """(median, lower, upper) of y at ``area`` (same unit as the fit): the curve
         and its back-transformed 95 % band (``"mean"`` or ``"obs"``)."""
