@@ -207,6 +207,14 @@ def test_us_output_is_the_fit_made_in_us_units():
     assert us.loc["width", "area_max"] == pytest.approx(area.max() / SQ_MILE_KM2, rel=1e-12)
 
 
+def test_drainage_area_is_written_in_square_miles_in_us_units():
+    from reachgauge.results import layers
+
+    row = layers.finish(pd.DataFrame([{"reach_id": "A", "drainage_area": 100.0}]), "reaches", "us")
+    # 1 mi² = 1.609344² km² exactly
+    assert row.loc[0, "drainage_area"] == pytest.approx(100.0 / SQ_MILE_KM2, rel=1e-15)
+
+
 HEAD = "name,variable,coefficient,exponent,units,area_min,area_max\n"
 
 

@@ -8,7 +8,8 @@ flow names, file paths, parameter values) goes through :func:`html.escape`.
 
 Contents: the cautions (:data:`reachgauge.notices.CAUTIONS`), the run summary,
 the flag and status codes that occur, a map of reaches and transects coloured by
-one numeric transect field, and per reach its summary figures, longitudinal
+one numeric transect field, the regional curves across the reaches
+(:mod:`reachgauge.results.report_regional`), and per reach its summary figures, longitudinal
 profile, up to four cross-sections, rating curve and a table of its transects.
 
 Figures are drawn with matplotlib's Agg canvas on free-standing

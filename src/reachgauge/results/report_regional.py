@@ -122,7 +122,7 @@ def _plot(reaches: pd.DataFrame, fits: pd.DataFrame, var: str, info) -> str:
         ax.text(0.5, 0.5, "no reach with a trusted figure and a drainage area",
                 transform=ax.transAxes, ha="center", fontsize=8)
     _log_axes(ax)
-    ax.set_xlabel(f"drainage area ({info.unit('reaches', 'drainage_area')})")
+    ax.set_xlabel(info.head("reaches", "drainage_area", "drainage area"))
     ax.set_ylabel(info.head("reaches", field, title))
     ax.set_title(var, fontsize=10, loc="left")
     ax.grid(color="#e6dfd3", lw=0.6, which="both")
