@@ -87,6 +87,13 @@ can recover n. The
 Cowan terms in cowan.csv lie inside the ranges of Arcement, G. J., and
 Schneider, V. R., 1989, USGS Water-Supply Paper 2339, Table 1. Each sums to
 about that n, and the meander factor follows each reach's sinuosity.
+
+Regional curves. The streams carry each reach's drainage area (``drainage_km2``),
+so the run fits its own curves over the five reaches: five points are few (the
+bands use Student's t with 3 degrees of freedom and are wide), enough to show the
+fit, not a regional study. regional_curves.csv holds two published curves to
+compare with; they are INVENTED for the demo (no real region, study or agency),
+one in SI and one in US units (ft, ft³/s against mi²).
 """
 
 from __future__ import annotations
@@ -125,6 +132,17 @@ BED_DIP = {"main": 0.15, "trib": 0.10}      # m: a gently concave bed, deepest a
 # regional curves (Bieger et al. 2015, national fit; realism only)
 WIDTH_COEF, WIDTH_EXP = 2.70, 0.352
 DEPTH_COEF, DEPTH_EXP = 0.30, 0.213
+
+# published regional curves to compare the run's own fit with (regional_curves.csv):
+# INVENTED for the demo, no real region, study or agency; name, variable, a, b, units,
+# area_min, area_max (us rows: ft, ft², ft³/s against mi²)
+PUBLISHED_CURVES = (
+    ("invented-valley-A", "width", 2.5, 0.36, "si", 5.0, 200.0),
+    ("invented-valley-A", "depth", 0.28, 0.22, "si", 5.0, 200.0),
+    ("invented-valley-A", "area", 0.70, 0.58, "si", 5.0, 200.0),
+    ("invented-uplands-B", "width", 13.0, 0.34, "us", 2.0, 60.0),
+    ("invented-uplands-B", "discharge", 62.5, 0.50, "us", 2.0, 60.0),
+)
 
 N_OBSERVED = 0.038             # n used to compute the "measured" flows
 N_CHANNEL_TABLE = 0.040        # landcover class 1 (Chow 1959, Table 5-6)
@@ -785,8 +803,10 @@ def write_geotiff(path, array, dtype, nodata, predictor, tags):
         dst.update_tags(**tags)
 
 
-def write_csv(path, header, rows, units=None):
+def write_csv(path, header, rows, units=None, comment=None):
     with open(path, "w", encoding="utf-8", newline="\n") as f:
+        if comment:
+            f.write(f"# {comment}\n")
         if units:   # the file's unit system, read whatever the run's --units
             f.write(f"# units: {units}\n")
         f.write(",".join(header) + "\n")
@@ -817,6 +837,8 @@ snap_distance = 10.0
 
 [bankfull]
 drainage_area_field = "drainage_km2"
+# invented published curves, for comparison with the run's own regional fit
+regional_curves = "regional_curves.csv"
 
 [roughness]
 landcover = "landcover.tif"
@@ -890,6 +912,10 @@ def main(out: Path = DEFAULT_OUT) -> Path:
               [(rid, *(f"{t:.3f}" for t in terms),
                 "1.00" if facts[rid]["sinuosity"] < 1.2 else "1.15")
                for rid, terms in COWAN.items()])
+    write_csv(out / "regional_curves.csv",
+              ("name", "variable", "coefficient", "exponent", "units", "area_min", "area_max"),
+              PUBLISHED_CURVES, comment="invented curves for the demo only: no real region, "
+                                        "study or agency")
     truth = build_truth(plan, facts, raster_facts, culvert)
     (out / "truth.json").write_text(json.dumps(truth, indent=2) + "\n", encoding="utf-8")
     (out / "config.toml").write_text(CONFIG_TOML, encoding="utf-8")

@@ -74,3 +74,23 @@ def test_demo_matches_the_truth_the_readme_quotes(demo):
     cal = pyogrio.read_dataframe(demo / "demo_result.gpkg", layer="calibration")
     n_true = json.loads((BASIN / "truth.json").read_text())["n_observations"]
     assert np.all(np.abs(cal.n_back / n_true - 1) < 0.2)
+
+
+def test_demo_fits_the_generators_regional_width_curve(demo):
+    """The demo's five reaches give a regional fit of each variable; the width's
+    exponent is the generator's W = 2.70 A^0.352 (make_basin.py) within what one pixel
+    per reach allows: a width within 2 m of its truth moves ln W by at most
+    ln(1 + 2/W), and the least-squares slope by at most that times Σ|x − m| / S over
+    the five ln A (closed form of the OLS slope, a weighted sum of the y)."""
+    truth = json.loads((BASIN / "truth.json").read_text())["reaches"]
+    fits = pyogrio.read_dataframe(demo / "demo_result.gpkg", layer="regional_fits",
+                                  read_geometry=False)
+    own = fits[fits.source == "run"].set_index("variable")
+    assert (own.status == "fitted").all() and (own.n_reaches == 5).all()
+    x = np.log([t["drainage_km2"] for t in truth.values()])
+    w = np.array([t["bankfull_width"] for t in truth.values()])
+    bound = np.abs(x - x.mean()).sum() / ((x - x.mean()) ** 2).sum() * np.log1p(2.0 / w).max()
+    assert abs(own.loc["width", "exponent"] - 0.352) <= bound
+    assert set(fits[fits.source == "published"].curve) == {"invented-valley-A",
+                                                           "invented-uplands-B"}
+    assert 'id="regional"' in (demo / "demo_report.html").read_text()

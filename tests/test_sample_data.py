@@ -43,7 +43,7 @@ ROOT = Path(__file__).resolve().parents[1]
 GENERATOR = ROOT / "sample_data" / "make_basin.py"
 BASIN = ROOT / "sample_data" / "basin"
 FILES = ("terrain.tif", "landcover.tif", "streams.gpkg", "landcover_n.csv", "design_flows.csv",
-         "observations.csv", "cowan.csv", "truth.json", "config.toml")
+         "observations.csv", "cowan.csv", "truth.json", "config.toml", "regional_curves.csv")
 
 
 def load_generator():
@@ -152,7 +152,8 @@ def test_generator_reproduces_streams(regenerated, streams):
 
 
 @pytest.mark.parametrize("name", ["landcover_n.csv", "design_flows.csv", "observations.csv",
-                                  "cowan.csv", "truth.json", "config.toml"])
+                                  "cowan.csv", "truth.json", "config.toml",
+                                  "regional_curves.csv"])
 def test_generator_reproduces_tables(regenerated, name):
     assert (regenerated / name).read_bytes() == (BASIN / name).read_bytes()
 

@@ -114,6 +114,10 @@ class RunConfig:
                                       "with --drainage-area terrain, route a copy of the terrain "
                                       "averaged F × F cells into one (less memory, coarser areas)",
                                       range=(1, 1000), closed=True)
+    regional_curves: Path | None = _f(None, "bankfull",
+                                      "CSV of published regional curves to compare the reaches "
+                                      "with (name, variable, coefficient, exponent, units, "
+                                      "area_min, area_max)")
     baseflow_depth: float = _f(0.0, "bankfull",
                                "depth of water under a flat water surface in the terrain to add "
                                "back (flat sections only)",

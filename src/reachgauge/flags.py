@@ -95,6 +95,9 @@ FLAGS = {
     # appended by the drainage-area change (issue 12)
     "area-lower-bound": "the watershed of the drainage area reaches the raster's edge or nodata: "
                         "water may come from beyond, the area is only a lower bound",
+    # appended by the regional-curves change (issue 12): a reach flag
+    "regional-outlier": "a bankfull figure of the reach lies outside the 95 % prediction band of "
+                        "the run's regional curve (regional_outside says which): check the reach",
 }
 
 SEVERITIES = ("information", "check", "do not use")
@@ -110,6 +113,7 @@ SEVERITY = {
     "reshaped-profile": "check", "break-unconfirmed": "check", "break-at-end": "check",
     "supercritical": "check", "zero-depth": "do not use", "closed-hollow": "do not use",
     "off-channel": "do not use", "isolated-pick": "check", "area-lower-bound": "check",
+    "regional-outlier": "check",
 }
 
 # flags that withhold a transect's bankfull figures

@@ -42,6 +42,7 @@ class RunResult:
     warnings: list
     notes: list = field(default_factory=list)
     timings: dict = field(default_factory=dict)
+    regional: object = None       # regional curves over the reaches (issue 12), see run_to_file
 
 
 class KeptInMemory:
@@ -161,6 +162,9 @@ def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, r
         try:
             run = compute(cfg, net, shared, store, done, progress)
             kept = len(run.headers)
+            # regional curves (issue 12): over every reach's row, before the file is assembled
+            from reachgauge.regional.run import regional_curves
+            run.regional = regional_curves([h["reach_row"] for h in run.headers], shared.curves)
             t1 = time.perf_counter()
             targets.write(run, cfg, store)
             run.timings["write"] = time.perf_counter() - t1

@@ -25,6 +25,7 @@ class SharedInputs:
     cowan: dict | None = None
     class_table: dict | None = None
     drainage: object = None     # the run's reachgauge.drainage.DrainageSource
+    curves: pd.DataFrame | None = None                  # published regional curves, SI
     _obs_groups: tuple | None = field(default=None, init=False, repr=False, compare=False)
 
     def for_reach(self, reach) -> hydraulics.ReachInputs:
@@ -75,6 +76,10 @@ def read_shared_inputs(cfg: RunConfig, net) -> SharedInputs:
         for cls, n in shared.class_table.items():
             roughness.warn_all(roughness.check_n_range(
                 n, force=cfg.force_n, where=f"n of land-cover class {cls}"))
+    if cfg.regional_curves:
+        from reachgauge.regional.published import read_curves
+
+        shared.curves = read_curves(cfg.regional_curves)
     if cfg.landcover:
         raster_mod.check_raster(cfg.landcover, "land-cover raster")
     if cfg.n_overbank is None and not cfg.landcover:

@@ -130,7 +130,9 @@ def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
     rid = str(reach.reach_id)
     base = {"reach_id": rid, "name": reach.name or "", "status": reach.status,
             "message": reach.message, "orientation": reach.orientation,
-            "reach_length": reach.length_m, "transects": 0, "transects_ok": 0}
+            "reach_length": reach.length_m, "transects": 0, "transects_ok": 0,
+            "drainage_area": hydraulics.drainage_area(hydraulics.ReachParams.from_config(cfg),
+                                                      reach.attributes)}
     if reach.status != "ok":
         return ReachOutput(rid, None, base)
     try:

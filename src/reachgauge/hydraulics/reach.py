@@ -95,6 +95,18 @@ class ReachResult:
     offsets: np.ndarray = None        # (t, m) offsets of sections_z, NaN-padded
 
 
+def drainage_area(params: ReachParams, attributes) -> float:
+    """The reach's drainage area (km²) from the drainage-area field, NaN where no
+    field is given or its value is not a positive number."""
+    if params.drainage_area_field is None:
+        return float("nan")
+    try:
+        v = float(attributes.get(params.drainage_area_field))
+    except (TypeError, ValueError):
+        return float("nan")
+    return v * params.drainage_area_km2_per_unit if np.isfinite(v) and v > 0 else float("nan")
+
+
 def _drainage_area(params: ReachParams, rid, attributes, at=None, t: int = 0):
     """(reach area km² or None, per-transect columns, reach columns). From the
     areas read at the transects (``at``, :class:`reachgauge.drainage.AtTransects`):
@@ -116,12 +128,7 @@ def _drainage_area(params: ReachParams, rid, attributes, at=None, t: int = 0):
             raise InputError(f"reach {rid}: no drainage area within the snapping distance of "
                              "its thalweg", "check the drainage raster covers the reach")
         return (reach["drainage_area"] if i >= 0 else None), cols, reach
-    v = float("nan")
-    if params.drainage_area_field:
-        try:
-            v = float(attributes.get(params.drainage_area_field)) * params.drainage_area_km2_per_unit
-        except (TypeError, ValueError):
-            v = float("nan")
+    v = drainage_area(params, attributes)
     cols = ({"drainage_area": nan, "drainage_snap": nan}, np.zeros(t, bool))
     reach = {"drainage_area": v if np.isfinite(v) and v > 0 else np.nan,
              "drainage_source": "field" if params.drainage_area_field else "",

@@ -8,7 +8,8 @@ flow names, file paths, parameter values) goes through :func:`html.escape`.
 
 Contents: the cautions (:data:`reachgauge.notices.CAUTIONS`), the run summary,
 the flag and status codes that occur, a map of reaches and transects coloured by
-one numeric transect field, and per reach its summary figures, longitudinal
+one numeric transect field, the regional curves across the reaches
+(:mod:`reachgauge.results.report_regional`), and per reach its summary figures, longitudinal
 profile, up to four cross-sections, rating curve and a table of its transects.
 
 Figures are drawn with matplotlib's Agg canvas on free-standing
@@ -30,6 +31,7 @@ from reachgauge import flags as flagcodes
 from reachgauge.results import schema
 from reachgauge.errors import InputError
 from reachgauge.notices import CAUTION_LINE, CAUTIONS
+from reachgauge.results.report_regional import regional_section
 from reachgauge.results.report_page import _codes, _e, _figure_html, _page, _table  # noqa: F401
 from reachgauge.results.report_figures import (_map, DPI, INK, NO_VALUE, PALETTE, _crs_unit, _f, _new_figure, _num,  # noqa: F401
                              _png, _profile_png, _rating_png, _scale_bar, _sections_png, _truthy,
@@ -38,7 +40,7 @@ from reachgauge.results.report_figures import (_map, DPI, INK, NO_VALUE, PALETTE
 
 REQUIRED_LAYERS = ("transects", "reaches", "thalweg_points", "rating_curves", "design_checks",
                    "profile", "sample_sections", "run_info")
-OPTIONAL_LAYERS = ("stage_figures", "calibration")
+OPTIONAL_LAYERS = ("stage_figures", "calibration", "regional_fits", "curve_ratios")
 TEXT_KINDS = ("text", "flag")
 
 
@@ -106,7 +108,7 @@ def render_report(layers: dict, colour_by: str = "discharge") -> str:
     by = {name: dict(tuple(lay[name].groupby("reach_id", sort=False)))
           for name in ("transects", "profile", "rating_curves", "design_checks", "sample_sections")}
     body = [_header(info), _cautions(), _summary(lay, info), _code_table(lay),
-            _map(lay, colour_by, info), _contents(reaches, info)]
+            _map(lay, colour_by, info), regional_section(lay, info), _contents(reaches, info)]
     for i, row in enumerate(reaches.itertuples(index=False)):
         own = {k: v.get(str(row.reach_id), lay[k].iloc[:0]) for k, v in by.items()}
         body.append(_reach_section(i, row, own, info))
@@ -257,6 +259,7 @@ def _code_table(lay: dict) -> str:
     """The status and flag codes that occur in this result, with their meanings."""
     tr, reaches = lay["transects"], lay["reaches"]
     seen = Counter(c for f in list(tr["flags"]) + list(reaches["slope_flags"])
+                   + list(reaches["regional_flags"])
                    for c in f.split(";") if c)
     rows = [f"<tr><td>flag</td><td><span class='code'>{_e(c)}</span></td><td>{n}</td>"
             f"<td>{_e(flagcodes.FLAGS.get(c, 'not a known code'))}</td></tr>"

@@ -6,8 +6,8 @@ US customary units at the output edge: ``length`` (m | ft), ``area`` (m² |
 ft²), ``velocity`` (m/s | ft/s), ``discharge`` (m³/s | ft³/s), ``stress``
 (N/m² | lbf/ft²), ``power`` (W/m² | lbf/(ft·s)), ``n`` (Manning's n: s/m^(1/3)
 in both systems by convention, the unit constant k absorbing the change),
-``drainage`` (drainage area: km² | mi², the units of the trade), ``none``
-(dimensionless), ``text``, ``flag`` (bool), ``count``.
+``drainage`` (drainage area: km² | mi², the trade's units; 1 mi² = 2.589988110336 km²),
+``none`` (dimensionless), ``text``, ``flag`` (bool), ``count``.
 """
 
 from __future__ import annotations
@@ -15,12 +15,13 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from reachgauge.hydraulics.bankfull.regional import SQ_MILE_KM2   # km² in one mi², exact
 from reachgauge.manning import FOOT
 
 # factor from SI to US customary for each kind
 TO_US = {"length": 1 / FOOT, "area": 1 / FOOT ** 2, "velocity": 1 / FOOT,
          "discharge": 1 / FOOT ** 3, "stress": 0.020885434, "power": 0.068521766,
-         "drainage": 1 / 2.589988110336}
+         "drainage": 1 / SQ_MILE_KM2}
 # stress: 1 N/m² = 0.020885434 lbf/ft²; power: 1 W/m² = 0.068521766 lbf/(ft·s)
 # (standard conversion factors: 1 lbf = 4.4482216 N, 1 ft = 0.3048 m); drainage:
 # 1 mi² = 2.589988110336 km² exactly (the international mile, 1609.344 m)
@@ -123,6 +124,51 @@ REACH_FIELDS = {
     "outliers": ("count", "transects whose bankfull depth is an outlier for the reach"),
     "flows_out": ("text", "design flows above the reach's median discharge at the bankfull stage"),
     "worst_ratio": ("none", "largest q_ratio of the design flows"),
+    # regional curves (issue 12)
+    "regional_flags": ("text", "regional-outlier: a bankfull figure of the reach lies outside the "
+                               "95 % prediction band of the run's regional curve"),
+    "regional_outside": ("text", "';'-separated variables (width, depth, area, discharge) outside "
+                                 "the 95 % prediction band of the run's regional curve"),
+}
+
+# regional curves (issue 12): y = coefficient × A^exponent, A the drainage area; the 95 %
+# bands at A: exp(ln coefficient + exponent ln A ± t_quantile × std_error ×
+# sqrt(k + 1/n_reaches + (ln A - log_area_mean)² / log_area_ss)), k = 0 for the band of
+# the mean (median) curve, k = 1 for the prediction band
+REGIONAL_FIT_FIELDS = {
+    "source": ("text", "run: this run's fit over its reaches; published: a curve of "
+                       "--regional-curves"),
+    "curve": ("text", "fit, or the published curve's name"),
+    "variable": ("text", "width (top_width), depth (bankfull_depth), area (flow_area) or "
+                         "discharge"),
+    "status": ("text", "fitted, or why there is no fit; published: the curve as given"),
+    "n_reaches": ("count", "reaches in the fit; published: reaches in its valid range"),
+    "left_out": ("count", "reaches left out of the fit"),
+    "left_out_why": ("text", "reaches left out, by reason (status not ok, no trusted figure, no "
+                             "drainage area)"),
+    "coefficient": ("none", "a in y = a·A^b, in the run's units: m, m², m³/s against km² (ft, "
+                            "ft², ft³/s against mi²)"),
+    "exponent": ("none", "b in y = a·A^b"),
+    "r_squared": ("none", "R² of the fit of ln y on ln A"),
+    "std_error": ("none", "standard error of the regression of ln y on ln A (natural log)"),
+    "area_min": ("drainage", "smallest drainage area fitted; published: the curve's valid range"),
+    "area_max": ("drainage", "largest drainage area fitted; published: the curve's valid range"),
+    "log_area_mean": ("none", "mean of ln A over the fitted reaches (A in the run's area unit)"),
+    "log_area_ss": ("none", "sum of squares of ln A about its mean"),
+    "t_quantile": ("none", "0.975 quantile of Student's t with n_reaches - 2 degrees of freedom"),
+    "outside": ("count", "fitted reaches outside the 95 % prediction band"),
+}
+
+CURVE_RATIO_FIELDS = {
+    "reach_id": ("text", "reach identifier"),
+    "source": ("text", "run (this run's fit) or published"),
+    "curve": ("text", "fit, or the published curve's name"),
+    "variable": ("text", "width, depth, area or discharge"),
+    "drainage_area": ("drainage", "drainage area of the reach"),
+    "ratio": ("none", "the reach's bankfull figure / the curve at its drainage area; empty "
+                      "outside the curve's valid range"),
+    "in_range": ("flag", "the reach's drainage area lies in the curve's valid range"),
+    "outside_band": ("flag", "fit rows: the figure lies outside the 95 % prediction band"),
 }
 
 RATING_FIELDS = {
@@ -217,6 +263,8 @@ LAYERS = {
     "profile": PROFILE_FIELDS,
     "calibration": CALIBRATION_FIELDS,
     "sample_sections": SAMPLE_SECTION_FIELDS,
+    "regional_fits": REGIONAL_FIT_FIELDS,
+    "curve_ratios": CURVE_RATIO_FIELDS,
 }
 
 
@@ -261,6 +309,12 @@ LAYER_NOTES = {
     "profile": "table, the longitudinal thalweg profile of each reach, raw and conditioned.",
     "calibration": "table, measured flows matched to transects and the n they imply.",
     "sample_sections": "table, ground points of a few transects per reach (for plots).",
+    "regional_fits": "table, the run's regional curves (bankfull figure = a·A^b over drainage "
+                     "area, log-log least squares over the reaches with trusted figures) and the "
+                     "published curves given; the bands follow from its fields (formula above "
+                     "the table).",
+    "curve_ratios": "table, one row per reach, curve and variable: the reach's figure over the "
+                    "curve's.",
     "run_info": "table of key and value: parameters, units, versions, input fingerprints.",
 }
 

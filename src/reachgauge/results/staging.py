@@ -24,7 +24,8 @@ from reachgauge.results import geopackage as gp
 
 REPORT_SUFFIXES = (".html", ".htm")
 CSV_TABLES = ("transects", "reaches", "thalweg_points", "rating_curves", "stage_figures",
-              "design_checks", "profile", "calibration", "sample_sections", "run_info")
+              "design_checks", "profile", "calibration", "sample_sections", "regional_fits",
+              "curve_ratios", "run_info")
 
 
 def check_gpkg_name(out) -> Path:
@@ -138,9 +139,11 @@ class RunOutputs:
             with _gpkg_date(created):
                 writer = gp.LayerWriter(self._stage(self.out), run.network.source_crs, cfg.units,
                                         csv=csv)
+                regional = getattr(run, "regional", None)   # regional curves (issue 12)
                 for header in run.headers:      # in reach order
-                    writer.add(parts.layers(header))
-                writer.close({"run_info": run_info(run, cfg, created)})
+                    writer.add(_with_regional(parts.layers(header), regional, header))
+                writer.close({**(regional.tables(cfg.units) if regional is not None else {}),
+                              "run_info": run_info(run, cfg, created)})
             if self.report is not None:
                 from reachgauge.results.report import read_result, render_report
 
@@ -184,6 +187,16 @@ class RunOutputs:
             self._staged.clear()
             self._new_dir = None
             lifecycle.STATE.written = list(done)
+
+
+def _with_regional(layers: dict, regional, header) -> dict:
+    """A reach's layers with the regional fields of its ``reaches`` row filled
+    (regional curves, issue 12): text fields the part already holds empty, so the
+    layer's fields stay those of the schema."""
+    fields = None if regional is None else regional.reach_fields.get(header["reach_id"])
+    if fields and "reaches" in layers:
+        layers = {**layers, "reaches": layers["reaches"].assign(**fields)}
+    return layers
 
 
 @contextmanager
