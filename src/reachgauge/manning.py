@@ -23,6 +23,7 @@ import numpy as np
 from reachgauge.errors import InputError
 
 FOOT = 0.3048  # m, exact (international foot, 1959)
+SQ_MILE_KM2 = (1609.344 / 1000.0) ** 2   # km² in one mi²: 1 mi = 1609.344 m exactly (1959)
 
 
 @dataclass(frozen=True)

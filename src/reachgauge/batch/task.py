@@ -26,6 +26,7 @@ import numpy as np
 
 from reachgauge.transects import cutting
 from reachgauge.hydraulics import reach as hydraulics
+from reachgauge.drainage.areas import drainage_area
 from reachgauge.inputs import raster as raster_mod
 from reachgauge.config import RunConfig
 from reachgauge.errors import InputError
@@ -131,8 +132,8 @@ def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
     base = {"reach_id": rid, "name": reach.name or "", "status": reach.status,
             "message": reach.message, "orientation": reach.orientation,
             "reach_length": reach.length_m, "transects": 0, "transects_ok": 0,
-            "drainage_area": hydraulics.drainage_area(hydraulics.ReachParams.from_config(cfg),
-                                                      reach.attributes)}
+            "drainage_area": drainage_area(hydraulics.ReachParams.from_config(cfg),
+                                           reach.attributes)}
     if reach.status != "ok":
         return ReachOutput(rid, None, base)
     try:

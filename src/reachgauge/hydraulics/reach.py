@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from reachgauge import flags
-from reachgauge.errors import InputError
+from reachgauge.drainage import areas as drainage_areas
 from reachgauge.hydraulics import bankfull, calibration, capacity, rating, roughness, trust
 from reachgauge.hydraulics.bankfull.banks import sampling_blur
 from reachgauge.hydraulics.figures import section_figures
@@ -93,52 +93,6 @@ class ReachResult:
     banks: np.ndarray = None          # (t, 2) bank offsets, for plots
     sections_z: np.ndarray = None     # (t, m) elevations used (after any baseflow correction), NaN-padded
     offsets: np.ndarray = None        # (t, m) offsets of sections_z, NaN-padded
-
-
-def drainage_area(params: ReachParams, attributes) -> float:
-    """The reach's drainage area (km²) from the drainage-area field, NaN where no
-    field is given or its value is not a positive number."""
-    if params.drainage_area_field is None:
-        return float("nan")
-    try:
-        v = float(attributes.get(params.drainage_area_field))
-    except (TypeError, ValueError):
-        return float("nan")
-    return v * params.drainage_area_km2_per_unit if np.isfinite(v) and v > 0 else float("nan")
-
-
-def _drainage_area(params: ReachParams, rid, attributes, at=None, t: int = 0):
-    """(reach area km² or None, per-transect columns, reach columns). From the
-    areas read at the transects (``at``, :class:`reachgauge.drainage.AtTransects`):
-    the reach's is the largest of its transects' (its downstream end; the largest
-    rather than the last transect's, which may lack a thalweg), a lower bound when
-    that transect's is. Else from the field, for the reach only."""
-    nan = np.full(t, np.nan)
-    if at is not None:
-        area = np.asarray(at.area_km2, float)
-        has = np.isfinite(area)
-        i = int(np.argmax(np.where(has, area, -np.inf))) if has.any() else -1
-        lower = bool(at.lower_bound[i]) if i >= 0 else False
-        reach = {"drainage_area": float(area[i]) if i >= 0 else np.nan,
-                 "drainage_source": at.source,
-                 "drainage_flags": "area-lower-bound" if lower else ""}
-        cols = ({"drainage_area": area, "drainage_snap": np.asarray(at.snap_m, float)},
-                np.asarray(at.lower_bound, bool))
-        if params.bankfull.method == "regional" and i < 0:
-            raise InputError(f"reach {rid}: no drainage area within the snapping distance of "
-                             "its thalweg", "check the drainage raster covers the reach")
-        return (reach["drainage_area"] if i >= 0 else None), cols, reach
-    v = drainage_area(params, attributes)
-    cols = ({"drainage_area": nan, "drainage_snap": nan}, np.zeros(t, bool))
-    reach = {"drainage_area": v if np.isfinite(v) and v > 0 else np.nan,
-             "drainage_source": "field" if params.drainage_area_field else "",
-             "drainage_flags": ""}
-    if params.bankfull.method != "regional":
-        return None, cols, reach
-    if not (np.isfinite(v) and v > 0):
-        raise InputError(f"reach {rid}: drainage-area field {params.drainage_area_field!r} has "
-                         "no positive value", "fill the field, or pick another bankfull method")
-    return v, cols, reach
 
 
 def _bankfull_figures(p, picks, slope, n, ok):
@@ -223,7 +177,7 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     slope = np.asarray(rs.slope, dtype=float)
     slope = np.where(np.isfinite(slope) & (slope > 0), slope, params.min_slope)
 
-    area_km2, (da_cols, da_lower), da_reach = _drainage_area(params, rid, reach.attributes,
+    area_km2, (da_cols, da_lower), da_reach = drainage_areas.reach_fields(params, rid, reach.attributes,
                                                              inputs.drainage, t)
     ok = np.asarray(rs.transect_status, dtype=object) == "ok"
     z = np.where(ok[:, None], np.asarray(rs.elevations, dtype=float), np.nan)

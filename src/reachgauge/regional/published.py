@@ -22,9 +22,8 @@ import numpy as np
 import pandas as pd
 
 from reachgauge.errors import InputError, shown
-from reachgauge.hydraulics.bankfull.regional import SQ_MILE_KM2
 from reachgauge.inputs import tables
-from reachgauge.manning import FOOT
+from reachgauge.manning import FOOT, SQ_MILE_KM2
 from reachgauge.regional.curves import LENGTH_POWER
 
 COLUMNS = ("name", "variable", "coefficient", "exponent", "area_min", "area_max")

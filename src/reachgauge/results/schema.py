@@ -15,8 +15,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from reachgauge.hydraulics.bankfull.regional import SQ_MILE_KM2   # km² in one mi², exact
-from reachgauge.manning import FOOT
+from reachgauge.manning import FOOT, SQ_MILE_KM2
 
 # factor from SI to US customary for each kind
 TO_US = {"length": 1 / FOOT, "area": 1 / FOOT ** 2, "velocity": 1 / FOOT,

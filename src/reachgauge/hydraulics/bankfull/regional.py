@@ -12,9 +12,8 @@ import math
 import numpy as np
 
 from reachgauge.errors import InputError
-from reachgauge.manning import FOOT
+from reachgauge.manning import FOOT, SQ_MILE_KM2
 
-SQ_MILE_KM2 = (1609.344 / 1000.0) ** 2   # 1 mi = 1609.344 m exactly (international mile)
 
 
 def finite(v, what) -> float:
