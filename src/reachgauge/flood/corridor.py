@@ -55,6 +55,16 @@ class Corridor:
     cell_area: float
     cell_size: float
     half: float
+    along: np.ndarray = None      # (h, w) m along the valley line (:func:`valley_line`)
+    valley: object = None         # the valley line (work CRS)
+    xy_factor: float = 1.0        # m per work-CRS unit
+
+    def valley_position(self, xy) -> np.ndarray:
+        """Positions (m along :attr:`valley`) of points ``xy`` (k, 2; work CRS), e.g.
+        the transects' stations, to interpolate their stages at :attr:`along`."""
+        k = self.xy_factor
+        return nearest_on_line(self.valley, np.asarray(xy, float).reshape(-1, 2),
+                               self.cell_size / k)[1] * k
 
 
 def cell_centres(transform, shape, grid=None) -> np.ndarray:
@@ -127,6 +137,24 @@ def nearest_on_line(line, xy, step, bound=np.inf):
     return best_d, best_s, best_side
 
 
+def valley_line(line, window, step):
+    """The centreline smoothed by a moving average of its densified vertices over
+    ``window`` (CRS units; ends held): the line along which the water surface is
+    interpolated. Far from a sinuous channel the nearest point of the channel
+    itself jumps from one meander to the next, and so would the surface; the
+    smoothed line's nearest point moves steadily down the valley."""
+    from scipy.ndimage import uniform_filter1d
+
+    v = shapely.get_coordinates(shapely.segmentize(line, step))
+    size = int(min(len(v), max(1, round(window / step)))) | 1
+    if size < 3:
+        return line
+    sm = uniform_filter1d(v, size, axis=0, mode="nearest")
+    sm[0], sm[-1] = v[0], v[-1]
+    out = shapely.LineString(sm)
+    return out if out.is_valid and out.length > 0 else line
+
+
 def _distance_if_near(line, xy, d_own, step, half):
     """Distance from ``xy`` to ``line`` where it may beat ``d_own``: points whose
     distance to the line's bounding box exceeds ``d_own`` keep +inf (the line cannot
@@ -179,10 +207,13 @@ def corridor(line, others, transform, shape, half_m: float, xy_factor: float = 1
         out[idx] = v
         return out.reshape(shape)
 
+    valley = valley_line(line, half, step)
+    along = nearest_on_line(valley, centres, step)[1] if valley is not line else s
     inside = full(d_own <= half, False)
     return Corridor(inside=inside, own=full(own, False), chainage=full(s * f, np.nan),
                     distance=full(d_own * f, np.nan), side=full(side.astype(np.int8), 0),
-                    cell_area=abs(a * e - b * d) * f * f, cell_size=size * f, half=half_m)
+                    cell_area=abs(a * e - b * d) * f * f, cell_size=size * f, half=half_m,
+                    along=full(along * f, np.nan), valley=valley, xy_factor=f)
 
 
 def window_points(line, half_m: float, xy_factor: float = 1.0) -> np.ndarray:

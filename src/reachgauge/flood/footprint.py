@@ -4,16 +4,20 @@ The water-surface elevation of a flow is known at the reach's transects (the
 normal-depth stage of the design checks, :mod:`reachgauge.hydraulics.capacity`).
 Between them it is interpolated linearly in chainage, each cell of the corridor
 taking the surface at the chainage of its nearest point on the centreline
-(:mod:`reachgauge.flood.corridor`), and held level beyond the first and last
-transect. Depth is that surface minus the terrain; the footprint is the wet cells
+(:mod:`reachgauge.flood.corridor`), measured along the centreline smoothed over
+the mapped half-width (:func:`~reachgauge.flood.corridor.valley_line`: far from a
+meandering channel the nearest point of the channel itself jumps from loop to
+loop, and the surface would step with it), and held level beyond the first and
+last transect. Depth is that surface minus the terrain; the footprint is the wet cells
 (depth > 0) connected, through cells sharing an edge, to the channel: the cells of
 the transects' thalweg points (``scipy.ndimage.label``). A low field behind a bank
 the surface does not reach over is not part of it, the same rule the sections
 follow (the wet region is the one connected to the thalweg).
 
-Out of bank: the same mapping with the bankfull stage at each transect gives the
-channel's footprint; the wet cells outside it are out of bank. A flow whose
-surface is below the bankfull surface everywhere has no such cells.
+Out of bank: the wet cells outside the channel, the band between the bank offsets
+of the transects interpolated along the reach (:func:`channel_cells`). The banks'
+band, not the bankfull stage mapped like a flow: a bankfull stage a hair above a
+flat floodplain (as a pick at the bank top is) would flood all of it.
 
 This is a screening map: one-dimensional normal-depth stages, terrain as flown
 (no channel bed under the water, no bridges or culverts), no storage or timing.
@@ -54,15 +58,16 @@ class FlowMap:
 
 def surface(cor: Corridor, chainage, stage) -> np.ndarray:
     """Water-surface elevation (m) on every corridor cell: ``stage`` (t,) at the
-    transects' ``chainage`` (t,) interpolated at each cell's chainage (NaN stages
-    skipped; all NaN outside the corridor or when no stage is known)."""
+    transects' positions ``chainage`` (t,) along the valley line interpolated at
+    each cell's position along it (NaN stages skipped; all NaN outside the
+    corridor or when no stage is known)."""
     ch = np.asarray(chainage, dtype=float)
     st = np.asarray(stage, dtype=float)
     keep = np.isfinite(ch) & np.isfinite(st)
     if not keep.any():
         return np.full(cor.inside.shape, np.nan)
     order = np.argsort(ch[keep], kind="stable")
-    s = np.where(cor.inside, cor.chainage, 0.0)
+    s = np.where(cor.inside, cor.along, 0.0)
     return np.where(cor.inside, np.interp(s, ch[keep][order], st[keep][order]), np.nan)
 
 
@@ -93,17 +98,36 @@ def seed_cells(transform, shape, xy) -> np.ndarray:
     return np.column_stack([r[ok], c[ok]])
 
 
-def map_flow(z, cor: Corridor, seeds, chainage, stage, bankfull_stage) -> FlowMap:
+def channel_cells(cor: Corridor, chainage, left, right) -> np.ndarray | None:
+    """The channel between the banks: cells whose signed offset from the centreline
+    (m, + to the right looking downstream) lies between the left and right bank
+    offsets ``left``, ``right`` (t,) at the transects' ``chainage`` (t,) along the
+    centreline, interpolated linearly between transects and held beyond the first
+    and last. NaN banks (no published bankfull stage) are skipped; None when no
+    transect has banks. Offsets, not a bankfull water surface: a surface a hair
+    above a flat floodplain would cover all of it."""
+    ch = np.asarray(chainage, float)
+    lo, hi = np.asarray(left, float), np.asarray(right, float)
+    keep = np.isfinite(ch) & np.isfinite(lo) & np.isfinite(hi)
+    if not keep.any():
+        return None
+    order = np.argsort(ch[keep], kind="stable")
+    s = np.where(cor.inside, cor.chainage, 0.0)
+    a = np.interp(s, ch[keep][order], lo[keep][order])
+    b = np.interp(s, ch[keep][order], hi[keep][order])
+    u = np.where(cor.inside, -cor.side * np.nan_to_num(cor.distance), np.nan)
+    return cor.inside & (u >= a) & (u <= b)
+
+
+def map_flow(z, cor: Corridor, seeds, along, stage, channel) -> FlowMap:
     """Depth and footprint of one flow: terrain ``z`` (h, w) m (NaN no data), the
-    reach's corridor, thalweg cells ``seeds``, the flow's stage (t,) and the
-    bankfull stage (t,) at the transects' chainage (t,) (m)."""
-    depth = surface(cor, chainage, stage) - z
+    reach's corridor, thalweg cells ``seeds``, the flow's stage (t,) at the
+    transects' positions ``along`` (t,) the valley line (m,
+    :meth:`~reachgauge.flood.corridor.Corridor.valley_position`), and the channel's
+    cells (:func:`channel_cells`, None when unknown)."""
+    depth = surface(cor, along, stage) - z
     wet = connected_wet(depth, cor.own, seeds)
-    bf = surface(cor, chainage, bankfull_stage)
-    if np.isfinite(bf).any():
-        oob = wet & ~connected_wet(bf - z, cor.own, seeds)
-    else:
-        oob = np.zeros_like(wet)
+    oob = wet & ~channel if channel is not None else np.zeros_like(wet)
     d = depth[wet]
     # cells in the corridor's outermost pixel ring: the footprint meets the width limit
     edge = wet & (cor.distance >= cor.half - cor.cell_size)
@@ -113,7 +137,7 @@ def map_flow(z, cor: Corridor, seeds, chainage, stage, bankfull_stage) -> FlowMa
     return FlowMap(
         depth=np.where(wet, depth, np.nan), wet=wet, out_of_bank=oob,
         wet_area=float(wet.sum() * cor.cell_area),
-        out_of_bank_area=float(oob.sum() * cor.cell_area) if np.isfinite(bf).any() else np.nan,
+        out_of_bank_area=float(oob.sum() * cor.cell_area) if channel is not None else np.nan,
         mean_depth=float(d.mean()) if d.size else np.nan,
         max_depth=float(d.max()) if d.size else np.nan,
         cut_from=float(ce.min()) if ce.size else np.nan,

@@ -89,6 +89,17 @@ def _caution(fm: FP.FlowMap, widened, cut, jump, has_bankfull, limit) -> str:
     return "; ".join(notes)
 
 
+def _bank_offsets(rs, result):
+    """Left and right bank offsets (t,) m from the digitised centreline, + to the
+    right looking downstream; NaN where no bankfull stage is published."""
+    tr = result.transects
+    pub = np.isfinite(tr["bank_left"].to_numpy(float))
+    hw = 0.5 * float(np.asarray(rs.offsets)[-1])
+    # result.banks: offsets from the sampling frame's left end, the thalweg at hw
+    u = np.asarray(result.banks, float) - hw + np.asarray(rs.thalweg_shift, float)[:, None]
+    return np.where(pub, u[:, 0], np.nan), np.where(pub, u[:, 1], np.nan)
+
+
 def _widened_stages(ds, raster, flows, ok, secs, limit, hw) -> dict:
     """{flow: (discharge, stage (t,), cut (t,), at_jump (t,), widened rows)}: the
     design stages, those of transects over their ends solved again on the transects
@@ -127,17 +138,16 @@ def reach_footprints(ds, raster, rs, result, neighbours, params: FootprintParams
     ok = np.asarray(rs.transect_status, dtype=object) == "ok"
     secs = extend.Sections.of(rs, result)
     stages = _widened_stages(ds, raster, flows, ok, secs, limit, hw)
-    bankfull = result.transects["bankfull_stage"].to_numpy(float)
-    top = np.nanmax([np.nanmax(np.r_[s, -np.inf]) for _q, s, _c, _j, _w in stages.values()]
-                    + [np.nanmax(np.r_[bankfull, -np.inf])])
+    top = np.nanmax([np.nanmax(np.r_[s, -np.inf]) for _q, s, _c, _j, _w in stages.values()])
     # only ground below the highest water surface can be wet
     cor = C.corridor(line, neighbours, transform, z.shape, half, raster.xy_factor, ds.transform,
                      candidates=np.isfinite(z) & (z < top))
     seeds = FP.seed_cells(transform, z.shape, np.asarray(rs.thalweg_xy)[ok])
-    chain = np.asarray(rs.chainage, float)
+    along = cor.valley_position(rs.centre_xy)   # the stations, along the valley line
+    channel = FP.channel_cells(cor, rs.chainage, *_bank_offsets(rs, result))
     rows, geoms, grids = [], [], []
     for name, (q, stage, cut, jump, widened) in stages.items():
-        fm = FP.map_flow(z, cor, seeds, chain, stage, bankfull)
+        fm = FP.map_flow(z, cor, seeds, along, stage, channel)
         rows.append({
             "reach_id": rid, "flow": name, "discharge": q, "wet_area": fm.wet_area,
             "out_of_bank_area": fm.out_of_bank_area, "mean_depth": fm.mean_depth,
@@ -146,7 +156,7 @@ def reach_footprints(ds, raster, rs, result, neighbours, params: FootprintParams
             "cut_by_limit": bool(fm.cut_length > 0 or cut[widened].any()),
             "cut_from": fm.cut_from, "cut_to": fm.cut_to, "cut_length": fm.cut_length,
             "caution": _caution(fm, widened.size, int(cut[widened].sum()), int(jump[ok].sum()),
-                                bool(np.isfinite(bankfull).any()), limit)})
+                                channel is not None, limit)})
         geoms.append(FP.polygons(fm.wet, transform))
         if params.depth_dir is not None and fm.wet.any():
             from reachgauge.flood.grids import write_depth

@@ -202,9 +202,9 @@ FOOTPRINT_FIELDS = {
     "discharge": ("discharge", "design discharge"),
     "wet_area": ("area", "plan area of the footprint: cells under the flow's water surface "
                          "connected to the channel"),
-    "out_of_bank_area": ("area", "part of the footprint outside the bankfull footprint (the same "
-                                 "mapping at the bankfull stage); empty where no bankfull stage "
-                                 "is published"),
+    "out_of_bank_area": ("area", "part of the footprint outside the channel: the band between "
+                                 "the transects' bank offsets, interpolated along the reach; "
+                                 "empty where no bankfull stage is published"),
     "mean_depth": ("length", "mean water depth over the footprint"),
     "max_depth": ("length", "largest water depth in the footprint"),
     "width_limit": ("length", "width mapped across the reach, and the widest a transect was "
