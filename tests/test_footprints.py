@@ -230,3 +230,25 @@ def test_footprints_of_two_reaches_join_without_overlap(tmp_path):
     union = shapely.union_all(geoms)
     assert union.geom_type == "Polygon"                      # one channel, no gap at the joint
     assert abs(union.area - sum(g.area for g in geoms)) < 1e-6
+
+
+def test_report_map_draws_the_largest_flow_over_a_hillshade(compound, tmp_path):
+    import base64
+
+    import geopandas as gpd
+
+    from reachgauge.results.report_figures import footprint_map_png, hillshade
+
+    d, dem, streams = compound
+    outs, _ = run_reaches(dem, streams, {"low": 8.0, "high": 60.0}, tmp_path, half_width=40.0)
+    (o,) = outs.values()
+    fp = gpd.GeoDataFrame(o.footprints.rows, geometry=o.footprints.geometry, crs="EPSG:32633")
+    with rasterio.open(dem) as g:
+        z, b = g.read(1), g.bounds
+    shade = hillshade(z, RES)
+    # a plane is evenly lit (Lambert: one value): the plain between bank and wall,
+    # rows 8 to 23 m left of the centre line ((MARGIN - dy) / RES)
+    plain = shade[int((MARGIN - 22) / RES):int((MARGIN - 9) / RES), 5:-5]
+    assert np.ptp(plain) < 1e-6 and np.ptp(shade) > 0.1
+    uri = footprint_map_png(fp, shade, (b.left, b.right, b.bottom, b.top))
+    assert base64.b64decode(uri.split(",", 1)[1])[:8] == b"\x89PNG\r\n\x1a\n"
