@@ -22,6 +22,7 @@ from __future__ import annotations
 import warnings
 
 import numpy as np
+import pandas as pd
 import pytest
 import rasterio
 import shapely
@@ -230,6 +231,15 @@ def test_footprints_of_two_reaches_join_without_overlap(tmp_path):
     union = shapely.union_all(geoms)
     assert union.geom_type == "Polygon"                      # one channel, no gap at the joint
     assert abs(union.area - sum(g.area for g in geoms)) < 1e-6
+    # the wider neighbour search footprints need leaves every other table as it was
+    cfg = RunConfig(dem=v.path, streams=streams, spacing=20.0, half_width=20.0)
+    net = network_mod.load_network(cfg)
+    for r in net.reaches:
+        nb = net.neighbours(r, 2.0 * cfg.half_width)
+        plain = task.process_reach(net.raster, r, cfg, ReachInputs(flows={"low": 4.0}), nb)
+        got = outs[plain.reach_id].result
+        for name in ("transects", "design", "rating"):
+            pd.testing.assert_frame_equal(getattr(plain.result, name), getattr(got, name))
 
 
 def test_report_map_draws_the_largest_flow_over_a_hillshade(compound, tmp_path):
@@ -252,3 +262,27 @@ def test_report_map_draws_the_largest_flow_over_a_hillshade(compound, tmp_path):
     assert np.ptp(plain) < 1e-6 and np.ptp(shade) > 0.1
     uri = footprint_map_png(fp, shade, (b.left, b.right, b.bottom, b.top))
     assert base64.b64decode(uri.split(",", 1)[1])[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_depth_grids_of_an_earlier_run_are_not_replaced_unasked(compound, tmp_path, capsys):
+    from reachgauge.cli import main
+
+    d, dem, streams = compound
+    flows = tmp_path / "flows.csv"
+    flows.write_text("reach_id,flow,discharge\n1,high,60\n")
+    old = tmp_path / "grids" / "depth_high_1.tif"
+    old.parent.mkdir()
+    old.write_bytes(b"earlier")
+    args = ["run", "--dem", str(dem), "--streams", str(streams), "--out",
+            str(tmp_path / "r.gpkg"), "--design-flows", str(flows), "--depth-grids",
+            str(old.parent)]
+    assert main(args) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "--overwrite" in err[0] and old.read_bytes() == b"earlier"
+    assert main(args + ["--overwrite"]) == 0
+    with rasterio.open(old) as g:          # replaced by a whole GeoTIFF, nothing left beside it
+        assert g.count == 1
+    assert sorted(p.name for p in old.parent.iterdir()) == ["depth_high_1.tif"]
+    assert main(["run", "--dem", str(dem), "--streams", str(streams), "--out",
+                 str(tmp_path / "s.gpkg"), "--depth-grids", str(tmp_path / "none")]) == 2
+    assert "is not a folder" in capsys.readouterr().err

@@ -49,6 +49,16 @@ def check_depth_dir(path) -> Path:
     return p
 
 
+def check_no_grids(path) -> None:
+    """Depth grids of an earlier run in the folder are not replaced unasked: a run
+    writes its grids as its reaches finish, so it refuses before the work."""
+    old = sorted(Path(path).glob("depth_*.tif"))
+    if old:
+        raise InputError(f"the --depth-grids folder {str(path)!r} already holds {len(old)} depth "
+                         f"grid(s) (e.g. {old[0].name})",
+                         "add --overwrite to replace them, or give an empty folder")
+
+
 def write_depth(folder, reach_id, flow, depth_m, transform, crs, units="si") -> Path:
     """Write ``depth_m`` (h, w) metres, NaN where dry, as a GeoTIFF in ``folder``;
     values in ft when ``units`` is "us". Returns the file's path."""
