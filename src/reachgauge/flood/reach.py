@@ -146,15 +146,20 @@ def reach_footprints(ds, raster, rs, result, neighbours, params: FootprintParams
     along = cor.valley_position(rs.centre_xy)   # the stations, along the valley line
     channel = FP.channel_cells(cor, rs.chainage, *_bank_offsets(rs, result))
     rows, geoms, grids = [], [], []
+    chain = np.asarray(rs.chainage, float)
     for name, (q, stage, cut, jump, widened) in stages.items():
         fm = FP.map_flow(z, cor, seeds, along, stage, channel)
+        # where the footprint is cut: its edge at the limit, and the transects still over
+        at = np.r_[fm.cut_from, fm.cut_to, chain[widened][cut[widened]]]
+        at = at[np.isfinite(at)]
         rows.append({
             "reach_id": rid, "flow": name, "discharge": q, "wet_area": fm.wet_area,
             "out_of_bank_area": fm.out_of_bank_area, "mean_depth": fm.mean_depth,
             "max_depth": fm.max_depth, "width_limit": limit,
             "transects_widened": int(widened.size), "transects_cut": int(cut[widened].sum()),
             "cut_by_limit": bool(fm.cut_length > 0 or cut[widened].any()),
-            "cut_from": fm.cut_from, "cut_to": fm.cut_to, "cut_length": fm.cut_length,
+            "cut_from": at.min() if at.size else np.nan, "cut_to": at.max() if at.size else np.nan,
+            "cut_length": fm.cut_length,
             "caution": _caution(fm, widened.size, int(cut[widened].sum()), int(jump[ok].sum()),
                                 channel is not None, limit)})
         geoms.append(FP.polygons(fm.wet, transform))

@@ -215,9 +215,11 @@ FOOTPRINT_FIELDS = {
                                "(their stages are upper bounds)"),
     "cut_by_limit": ("flag", "the footprint is cut by the width limit: it reaches the edge of the "
                              "mapped width, or a transect is still over its ends"),
-    "cut_from": ("length", "first chainage where the footprint reaches the width limit"),
-    "cut_to": ("length", "last chainage where the footprint reaches the width limit"),
-    "cut_length": ("length", "length of reach along which the footprint reaches the width limit"),
+    "cut_from": ("length", "first chainage where the footprint is cut by the width limit (its "
+                           "edge at the limit, or a transect still over its ends)"),
+    "cut_to": ("length", "last chainage where the footprint is cut by the width limit"),
+    "cut_length": ("length", "length of reach along which the footprint's edge reaches the width "
+                             "limit on the map"),
     "caution": ("text", "what to keep in mind about this footprint ('' when nothing special)"),
 }
 
