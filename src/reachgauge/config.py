@@ -151,6 +151,18 @@ class RunConfig:
     design_flows: Path | None = _f(None, "stages",
                                    "CSV of reach_id, flow, discharge: design flows to check")
     design_flow_fields: tuple[str, ...] = _f((), "stages", "fields of the streams holding design flows")
+    # -------------------------------------------------------------- footprints
+    footprints: bool = _f(False, "footprints",
+                          "map where each design flow goes: a footprints layer of polygons per "
+                          "reach and flow (costs time: one more terrain window per reach)")
+    footprint_max_width: float | None = _f(None, "footprints",
+                                           "widest a transect is widened to where a flow runs "
+                                           "over its ends, and the width mapped (default: 4 × "
+                                           "the transect length)", length=True,
+                                           range=(0, 100_000))
+    depth_grids: Path | None = _f(None, "footprints",
+                                  "folder for a depth GeoTIFF per reach and flow (turns "
+                                  "--footprints on)")
     # ----------------------------------------------------------------- running
     jobs: int = _f(1, "running", "worker processes (0: one per core)", range=(0, 256),
                    closed=True)

@@ -214,6 +214,14 @@ def validate(cfg, origin: dict | None = None) -> None:
                          "scheduler address",
                          "give host:port, e.g. tcp://10.0.0.5:8786 (the address the scheduler "
                          "prints when it starts)")
+    if cfg.footprint_max_width is not None and cfg.footprint_max_width < 2 * cfg.half_width:
+        raise InputError(f"{n('footprint_max_width')} is shorter than the transects "
+                         f"(2 × {n('half_width')})",
+                         "give a footprint width limit of at least the transect length")
+    if cfg.depth_grids is not None:
+        from reachgauge.flood.grids import check_depth_dir
+
+        check_depth_dir(cfg.depth_grids)
     from reachgauge.hydraulics.roughness import check_n_range  # Chow (1959), Table 5-6
 
     for name in ("n", "n_overbank"):

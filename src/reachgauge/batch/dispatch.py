@@ -92,8 +92,20 @@ def tasks(cfg: RunConfig, net, shared: SharedInputs, reaches, raster=None, landc
     landcover = cfg.landcover if landcover is None else landcover
     for r in reaches:
         # other streams within reach of a transect, for the crossing checks
-        nb = net.neighbours(r, 2.0 * max(cfg.half_width, r.half_width_m or 0.0))
+        nb = net.neighbours(r, 2.0 * max(cfg.half_width, r.half_width_m or 0.0,
+                                          _footprint_half(cfg, r)))
         yield raster, r, cfg, shared.for_reach(r), nb, landcover
+
+
+def _footprint_half(cfg, r) -> float:
+    """Half the width a reach's footprints map (m; 0 without footprints): reaches
+    within twice that may own cells of its corridor (reachgauge.flood.corridor)."""
+    if not (cfg.footprints or cfg.depth_grids is not None):
+        return 0.0
+    from reachgauge.flood.reach import DEFAULT_WIDTH_FACTOR
+
+    hw = max(cfg.half_width, r.half_width_m or 0.0)
+    return 0.5 * (cfg.footprint_max_width or DEFAULT_WIDTH_FACTOR * 2 * hw)
 
 
 def estimate_transects(reaches, spacing: float) -> float:

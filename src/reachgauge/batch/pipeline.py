@@ -153,6 +153,10 @@ def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, r
     # every target checked before the work; all written together after it
     with RunOutputs(out, csv_dir=csv_dir, report=report, overwrite=overwrite,
                     colour_by=colour_by) as targets:
+        if cfg.depth_grids is not None and not (overwrite or resume):
+            from reachgauge.flood.grids import check_no_grids
+
+            check_no_grids(cfg.depth_grids)
         net = network_mod.load_network(cfg)
         outcome.check_network(net, cfg)      # every reach unusable for one cause: exit 2 now
         shared = read_shared_inputs(cfg, net)

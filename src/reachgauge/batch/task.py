@@ -111,6 +111,7 @@ class ReachOutput:
     error: str | None = None
     seconds: float = 0.0
     read_seconds: float = 0.0
+    footprints: object = None    # reachgauge.flood.reach.Footprints, with --footprints
 
 
 def run_task(finish, *args):
@@ -121,6 +122,23 @@ def run_task(finish, *args):
     out = process_reach(*args)
     out.read_seconds = raster_mod.read_seconds() - r0
     return out if finish is None else finish(out, args[1])
+
+
+def _footprints(raster, rs, res, cfg, neighbours):
+    """The reach's design-flow footprints (:mod:`reachgauge.flood`), when asked for.
+    A damaged terrain window costs the footprints only: the reach's message says so."""
+    from reachgauge.flood.reach import FootprintParams, reach_footprints
+
+    params = FootprintParams.from_config(cfg)
+    if params is None:
+        return None
+    try:
+        return reach_footprints(opened(raster), raster, rs, res, neighbours, params)
+    except raster_mod.TerrainReadError as exc:
+        discard(raster)
+        res.reach["message"] = "; ".join(m for m in (res.reach.get("message"),
+                                                      f"no footprints: {exc}") if m)
+        return None
 
 
 def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
@@ -161,6 +179,7 @@ def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
         res = hydraulics.analyse_reach(rs, hydraulics.ReachParams.from_config(cfg), inputs)
         return ReachOutput(rid, res, res.reach, transect_lines=list(rs.transects),
                            thalweg_xy=np.asarray(rs.thalweg_xy), offsets=np.asarray(rs.offsets),
+                           footprints=_footprints(raster, rs, res, cfg, neighbours),
                            seconds=time.perf_counter() - t0)
     except InputError as exc:
         base.update(status="bad-input", message=str(exc))

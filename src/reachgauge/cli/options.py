@@ -21,6 +21,7 @@ GROUP_TITLES = {
     "roughness": "Manning's n",
     "stages": "stages, rating curves and design flows",
     "drainage": "drainage area",
+    "footprints": "design-flow footprints",
     "running": "running",
 }
 

@@ -27,6 +27,7 @@ LAYERS = {
     "profile": (schema.PROFILE_FIELDS, None),
     "calibration": (schema.CALIBRATION_FIELDS, None),
     "sample_sections": (schema.SAMPLE_SECTION_FIELDS, None),
+    "footprints": (schema.FOOTPRINT_FIELDS, "MultiPolygon"),
 }
 
 
@@ -127,6 +128,9 @@ def reach_layers(out, line, units: str, work, source) -> dict:
                         ("calibration", res.calibration), ("sample_sections", sample_sections(out))):
         if frame is not None and len(frame):
             layers[name] = finish(frame.reset_index(drop=True), name, units)
+    fp = getattr(out, "footprints", None)
+    if fp is not None and len(fp.rows):
+        layers["footprints"] = geo(fp.rows, fp.geometry, "footprints")
     return layers
 
 

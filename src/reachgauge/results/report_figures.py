@@ -353,3 +353,65 @@ def _map(lay: dict, colour_by: str, info) -> str:
     cap = (f"Reaches (dark lines, labelled by id), transects coloured by <b>{_e(label)}</b>, "
            f"thalweg points as dots; axes in map units of the result's CRS{note}.")
     return f'<section class="panel"><h2>Map</h2>{_figure_html(uri, "map", cap)}</section>'
+
+
+def hillshade(z, res: float, azimuth: float = 315.0, altitude: float = 45.0) -> np.ndarray:
+    """Hillshade (0 dark … 1 lit) of elevations ``z`` (2-D, NaN no data) on square
+    pixels of ``res`` (same unit as z): matplotlib's ``LightSource`` (Lambertian
+    shading, light from ``azimuth``° clockwise from north at ``altitude``°)."""
+    from matplotlib.colors import LightSource
+
+    z = np.asarray(z, dtype=float)
+    fill = np.nanmin(z) if np.isfinite(z).any() else 0.0
+    shade = LightSource(azimuth, altitude).hillshade(np.where(np.isfinite(z), z, fill),
+                                                     dx=res, dy=res)
+    return np.where(np.isfinite(z), shade, np.nan)
+
+
+def footprint_map_png(footprints, shade=None, extent=None, unit: str = "m") -> str:
+    """Map of the footprints of each reach's largest design flow (``footprints``:
+    a GeoDataFrame of the ``footprints`` layer) over a hillshade ``shade`` (2-D,
+    0…1, or None) covering ``extent`` (left, right, bottom, top, map units).
+    Out-of-bank water is not told apart here; the table beside says how much."""
+    import shapely
+    from matplotlib.collections import PatchCollection
+    from matplotlib.patches import PathPatch
+    from matplotlib.path import Path as MPath
+
+    fig = _new_figure(9.5, 6.5)
+    ax = fig.add_subplot()
+    if shade is not None and extent is not None:
+        ax.imshow(shade, cmap="Greys_r", extent=extent, origin="upper", vmin=0, vmax=1,
+                  interpolation="bilinear", zorder=0)
+    big = footprints.loc[footprints.groupby("reach_id")["discharge"].idxmax()] \
+        if len(footprints) else footprints
+    patches = []
+    for g in big.geometry:
+        for poly in shapely.get_parts(np.asarray([g], dtype=object)):
+            if poly is None or poly.is_empty:
+                continue
+            rings = [np.asarray(poly.exterior.coords)] + [np.asarray(r.coords)
+                                                          for r in poly.interiors]
+            codes = np.concatenate([[MPath.MOVETO] + [MPath.LINETO] * (len(r) - 2)
+                                    + [MPath.CLOSEPOLY] for r in rings])
+            patches.append(PathPatch(MPath(np.concatenate(rings), codes)))
+    ax.add_collection(PatchCollection(patches, facecolor=WATER, edgecolor=WATER_EDGE,
+                                      linewidths=0.4, alpha=0.8, zorder=2))
+    for rid, flow, g in zip(big["reach_id"], big["flow"], big.geometry):
+        if g is not None and not g.is_empty:
+            p = g.representative_point()
+            ax.text(p.x, p.y, f"{rid}: {flow}", fontsize=8, color=INK, parse_math=False,
+                    zorder=5, bbox=dict(boxstyle="round,pad=0.15", fc="white", ec="none",
+                                        alpha=0.75))
+    if extent is not None:
+        ax.set_xlim(extent[0], extent[1])
+        ax.set_ylim(extent[2], extent[3])
+    else:
+        ax.autoscale_view()
+    ax.set_aspect("equal", adjustable="box")
+    ax.ticklabel_format(useOffset=False, style="plain")
+    ax.tick_params(labelsize=8)
+    ax.set_xlabel(f"easting ({unit})")
+    ax.set_ylabel(f"northing ({unit})")
+    _scale_bar(ax, unit)
+    return _png(fig)

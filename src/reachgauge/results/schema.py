@@ -253,6 +253,34 @@ SAMPLE_SECTION_FIELDS = {
     "elevation": ("length", "ground elevation as sampled (after any baseflow correction)"),
 }
 
+# design-flow footprints (reachgauge.flood): one polygon per reach and flow
+FOOTPRINT_FIELDS = {
+    "reach_id": ("text", "reach identifier"),
+    "flow": ("text", "name of the design flow"),
+    "discharge": ("discharge", "design discharge"),
+    "wet_area": ("area", "plan area of the footprint: cells under the flow's water surface "
+                         "connected to the channel"),
+    "out_of_bank_area": ("area", "part of the footprint outside the channel: the band between "
+                                 "the transects' bank offsets, interpolated along the reach; "
+                                 "empty where no bankfull stage is published"),
+    "mean_depth": ("length", "mean water depth over the footprint"),
+    "max_depth": ("length", "largest water depth in the footprint"),
+    "width_limit": ("length", "width mapped across the reach, and the widest a transect was "
+                              "widened to"),
+    "transects_widened": ("count", "transects whose water ran over their ends, widened to the "
+                                   "width limit for their stage"),
+    "transects_cut": ("count", "of those, transects still over their ends at the width limit "
+                               "(their stages are upper bounds)"),
+    "cut_by_limit": ("flag", "the footprint is cut by the width limit: it reaches the edge of the "
+                             "mapped width, or a transect is still over its ends"),
+    "cut_from": ("length", "first chainage where the footprint is cut by the width limit (its "
+                           "edge at the limit, or a transect still over its ends)"),
+    "cut_to": ("length", "last chainage where the footprint is cut by the width limit"),
+    "cut_length": ("length", "length of reach along which the footprint's edge reaches the width "
+                             "limit on the map"),
+    "caution": ("text", "what to keep in mind about this footprint ('' when nothing special)"),
+}
+
 LAYERS = {
     "transects": TRANSECT_FIELDS,
     "reaches": REACH_FIELDS,
@@ -264,6 +292,7 @@ LAYERS = {
     "sample_sections": SAMPLE_SECTION_FIELDS,
     "regional_fits": REGIONAL_FIT_FIELDS,
     "curve_ratios": CURVE_RATIO_FIELDS,
+    "footprints": FOOTPRINT_FIELDS,
 }
 
 
@@ -314,6 +343,9 @@ LAYER_NOTES = {
                      "the table).",
     "curve_ratios": "table, one row per reach, curve and variable: the reach's figure over the "
                     "curve's.",
+    "footprints": "MultiPolygon, one row per reach and design flow (with --footprints): where the "
+                  "flow's normal-depth water surface, interpolated between transects, stands above "
+                  "the terrain, connected to the channel. A screening map, not a flood model.",
     "run_info": "table of key and value: parameters, units, versions, input fingerprints.",
 }
 
