@@ -25,7 +25,7 @@ from reachgauge.results import geopackage as gp
 REPORT_SUFFIXES = (".html", ".htm")
 CSV_TABLES = ("transects", "reaches", "thalweg_points", "rating_curves", "stage_figures",
               "design_checks", "profile", "calibration", "sample_sections", "regional_fits",
-              "curve_ratios", "run_info")
+              "curve_ratios", "footprints", "run_info")
 
 
 def check_gpkg_name(out) -> Path:
