@@ -99,7 +99,7 @@ def _read_whole(raster, factor: int):
     with raster_mod.open_raster(raster) as ds:
         z = ds.read(1, out_shape=shape, masked=True, out_dtype="float32",
                     resampling=Resampling.average if factor > 1 else Resampling.nearest)
-    transform = raster.transform * raster.transform.scale(raster.width / shape[1],
+    transform = raster.transform @ raster.transform.scale(raster.width / shape[1],
                                                           raster.height / shape[0])
     return np.ma.filled(z.astype(np.float32), np.nan), transform
 
