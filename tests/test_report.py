@@ -205,10 +205,18 @@ def test_code_table_lists_exactly_the_codes_that_occur(layers, page):
 def test_summary_counts_match_the_layers(layers, page):
     tr = layers["transects"]
     n_ok = int((tr["status"] == "ok").sum())
-    # flags other than the design-flow results (flags.CAPACITY_FLAGS) count as "for a look"
+    # sections counted by their gravest flag, design-flow results (flags.CAPACITY_FLAGS) aside
     capacity = {"out-of-bank", "over-profile"}
-    n_flagged = int(sum(any(c and c not in capacity for c in f.split(";")) for f in tr["flags"]))
-    assert f"{len(tr)}: {n_ok} with figures, {n_flagged} flagged for a look" in page.text
+    grave = [flags.worst(f) or "none" for f in tr["flags"]]
+    # by hand: the gravest severity of the flags other than the design-flow results
+    hand = ["none" if not [c for c in f.split(";") if c and c not in capacity] else
+            max((flags.severity(c) for c in f.split(";") if c and c not in capacity),
+                key=flags.SEVERITIES.index) for f in tr["flags"]]
+    assert grave == hand
+    assert (f"{len(tr)}: {n_ok} with figures; by their gravest flag (design-flow results aside) "
+            f"{grave.count('do not use')} do not use, {grave.count('check')} to check, "
+            f"{grave.count('information')} information only, {grave.count('none')} clean"
+            ) in page.text
     out = layers["reaches"].query("flows_out != '' and flows_out == flows_out")
     assert len(out) >= 1
     summary = page.text[page.text.index("Design flows out of bank"):page.text.index("Units")]
@@ -219,8 +227,12 @@ def test_summary_counts_match_the_layers(layers, page):
 def test_transect_rows_marked(layers, page):
     tr = layers["transects"]
     ok = tr["status"] == "ok"
-    assert page.rows.count("flagged") >= int((ok & (tr["flags"] != "")).sum())
-    assert page.rows.count("void") == int((~ok).sum())
+    grave = tr["flags"].map(flags.worst)
+    # ✕ (void): no figure to use (a status, or a "do not use" flag); ! (flagged): look
+    # before using; information-only flags carry no mark
+    void = ~ok | (grave == "do not use")
+    assert page.rows.count("void") == int(void.sum())
+    assert page.rows.count("flagged") >= int((~void & (grave == "check")).sum())
 
 
 def test_us_units_are_labelled_and_not_converted_twice():

@@ -207,7 +207,7 @@ def _summary(lay: dict, info: _Info) -> str:
     status = Counter(reaches["status"])
     ok_reaches = status.pop("ok", 0)
     t_ok = int((tr["status"] == "ok").sum())
-    t_flagged = int(sum(flagcodes.has_quality_flag(f) for f in tr["flags"]))
+    worst = Counter(flagcodes.worst(f) or "none" for f in tr["flags"])
     counts = Counter(c for f in tr["flags"] for c in f.split(";") if c)
     top = ", ".join(f"{_e(k)} ({v})" for k, v in counts.most_common(6)) or "none"
     others = "".join(f", {v} {_e(k)}" for k, v in status.items())
@@ -222,7 +222,10 @@ def _summary(lay: dict, info: _Info) -> str:
         f"<td class='path'>{_e(str(fp.get('sha256_first_mib', ''))[:16])}</td></tr>"
         for k, fp in info.inputs)
     rows = [("Reaches", f"{len(reaches)} ({ok_reaches} processed{others})"),
-            ("Transects", f"{len(tr)}: {t_ok} with figures, {t_flagged} flagged for a look"),
+            ("Transects", f"{len(tr)}: {t_ok} with figures; by their gravest flag (design-flow "
+                          f"results aside) {worst['do not use']} do not use, {worst['check']} to "
+                          f"check, {worst['information']} information only, {worst['none']} "
+                          "clean"),
             ("Most frequent flags", top),
             ("Design flows out of bank", oob),
             ("Units", f"{'SI' if info.units == 'si' else 'US customary'} — {unit_text}"),
@@ -373,10 +376,12 @@ def _transect_table(tr: pd.DataFrame, info: _Info) -> str:
             h("discharge", "discharge"), h("min_freeboard", "min freeboard")]
     rows = []
     for t in tr.itertuples(index=False):
-        bad = t.status != "ok"
-        cls = "void" if bad else ("flagged" if t.flags else "")
-        mark = "✕" if bad else ("!" if t.flags else "")
-        status = _codes(t.status, flagcodes.TRANSECT_STATUS) if bad else "ok"
+        # the mark says what to do: ✕ no figure to use, ! look before using, none: use
+        grave = flagcodes.worst(t.flags)
+        bad = t.status != "ok" or grave == "do not use"
+        cls = "void" if bad else ("flagged" if grave == "check" else "")
+        mark = "✕" if bad else ("!" if grave == "check" else "")
+        status = _codes(t.status, flagcodes.TRANSECT_STATUS) if t.status != "ok" else "ok"
         rows.append(f"<tr class='{cls}'><td class='mark'>{mark}</td><td>{_num(t.station, 0)}</td>"
                     f"<td>{_num(t.chainage, 1)}</td><td>{status}</td>"
                     f"<td>{_codes(t.flags, flagcodes.FLAGS)}</td><td>{_e(t.confidence)}</td>"
