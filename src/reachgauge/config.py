@@ -134,6 +134,18 @@ class RunConfig:
     design_flows: Path | None = _f(None, "stages",
                                    "CSV of reach_id, flow, discharge: design flows to check")
     design_flow_fields: tuple[str, ...] = _f((), "stages", "fields of the streams holding design flows")
+    # ------------------------------------------------------------- uncertainty
+    uncertainty: int = _f(0, "uncertainty", "Monte Carlo draws for the uncertainty of discharge and "
+                          "design checks (0: off; a few hundred for stable 10th-90th percentiles)",
+                          range=(0, 100_000), closed=True)
+    n_range: tuple[float, ...] = _f((), "uncertainty", "LOW HIGH: bounds of the channel n for the "
+                                    "uncertainty draws (default: its source's range, else ±20 %)",
+                                    range=(0, 1))
+    vertical_accuracy: float | None = _f(None, "uncertainty", "vertical accuracy (RMSE) of the "
+                                         "terrain for the uncertainty draws (default: exact)",
+                                         length=True, range=(0, 100))
+    seed: int = _f(0, "uncertainty", "seed of the uncertainty draws", range=(0, 2 ** 32 - 1),
+                   closed=True)
     # ----------------------------------------------------------------- running
     jobs: int = _f(1, "running", "worker processes (0: one per core)", range=(0, 256),
                    closed=True)

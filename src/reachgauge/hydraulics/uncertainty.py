@@ -1,0 +1,390 @@
+"""Uncertainty of the bankfull discharge, the rating curves and the design-flow checks
+by Monte Carlo propagation (JCGM 101:2008, *Evaluation of measurement data —
+Supplement 1 to the "Guide to the expression of uncertainty in measurement" —
+Propagation of distributions using a Monte Carlo method*).
+
+Each draw takes one value of every uncertain input from its distribution and runs
+the same section kernel (:mod:`reachgauge.kernel.sections`) as the plain figures, for
+all transects of the reach and a block of draws in one call ((transects × draws)
+profiles). The outputs' percentiles over the draws are reported: p10–p90 is the
+probabilistically symmetric 80 % coverage interval of JCGM 101 (7.7).
+
+The inputs and their distributions (JCGM 101, 6.4: a rectangular distribution where
+only bounds are known):
+
+- **Manning's n**, uniform within the range of its source: Cowan's method draws each
+  term uniformly within the range of its class in Arcement & Schneider (1989), Table 1
+  (the envelope of the classes whose range holds the value) and sums them, times the
+  meander multiplier; a single value (default, streams field, land-cover table,
+  calibration) is taken ±20 % (``REL_N``: common practice, not a published bound),
+  unless ``--n-range LOW HIGH`` gives the channel's bounds (over any source's own). One
+  draw of n serves every transect of the reach (n is the reach's, or its land cover's:
+  an error in it is shared), one quantile for each of left overbank, channel, right
+  overbank.
+- **Slope**, lognormal with its median at the fitted slope and a log-standard
+  deviation of the window fit's standard error over the slope
+  (:func:`slope_log_sd`). Neighbouring stations share most of their window's points,
+  so their errors are drawn as a moving average of independent normals over the
+  window's stations (correlation falling linearly to 0 one window apart).
+- **Bankfull stage**, normal about the pick with a standard deviation combining the
+  spread of the automatic methods (their range over the expected range of that many
+  normal draws, :func:`expected_range`) and the terrain's noise σ (one sample's error):
+  σ² = (range / d₂(k))² + σ_noise². Independent between transects.
+- **Terrain elevation**, from ``--vertical-accuracy`` (RMSE, m). A lidar's vertical
+  error has a part shared over a flight strip (kilometres: a reach) and a random part
+  per point. The random part shows in the data as the scatter the terrain's noise σ
+  measures; the rest, √(RMSE² − σ²), cannot be seen in the data and is applied as one
+  common offset per reach and draw; the random part, min(σ, RMSE), as independent
+  noise on every sample. The common offset moves ground and picked stage together, so
+  it leaves the bankfull discharge and the freeboard unchanged and shifts only where
+  the water stands in absolute elevation. Without ``--vertical-accuracy`` the ground is
+  taken as exact.
+
+Reproducible: each reach's draws come from a generator seeded by the run's seed and a
+stable hash of the reach id (:func:`generator`), so the figures do not depend on the
+executor or the order the reaches run in.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+from scipy import integrate, stats
+
+from reachgauge.hydraulics import roughness
+from reachgauge.kernel import sections as K
+
+REL_N = 0.20          # ±20 % around a single n (common practice)
+MAX_LOG_SD = 1.0      # slope: a log-sd above 1 (a factor e) says the fit knows nothing more
+QUANTILES = (0.10, 0.50, 0.90)
+CELLS = 1 << 20       # (profiles × stages) cells of one kernel call (bounds memory)
+COWAN_TABLES = (roughness.COWAN_BASE, roughness.COWAN_IRREGULARITY, roughness.COWAN_VARIATION,
+                roughness.COWAN_OBSTRUCTION, roughness.COWAN_VEGETATION)
+COWAN_KEYS = ("base", "irregularity", "variation", "obstruction", "vegetation")
+
+
+@dataclass(frozen=True)
+class UncertaintyParams:
+    """``draws`` (0: off); ``n_range`` () or (low, high) channel n; ``vertical_accuracy``
+    RMSE m or None; ``seed``; ``slope_window`` m (the slope fit's window)."""
+
+    draws: int = 0
+    n_range: tuple = ()
+    vertical_accuracy: float | None = None
+    seed: int = 0
+    slope_window: float = 200.0
+
+    @classmethod
+    def from_config(cls, cfg) -> "UncertaintyParams":
+        return cls(int(cfg.uncertainty), tuple(cfg.n_range), cfg.vertical_accuracy,
+                   int(cfg.seed), float(cfg.slope_window))
+
+
+def generator(seed: int, reach_id) -> np.random.Generator:
+    """The reach's generator: SeedSequence of the run seed and the first 128 bits of
+    the SHA-256 of the reach id (stable across processes, unlike ``hash``)."""
+    words = np.frombuffer(hashlib.sha256(str(reach_id).encode()).digest()[:16], dtype="<u4")
+    return np.random.default_rng(np.random.SeedSequence([int(seed), *map(int, words)]))
+
+
+@lru_cache(maxsize=64)
+def expected_range(k: int) -> float:
+    """d₂(k): expected range of k independent standard normal draws,
+    ∫ 1 − Φ(x)ᵏ − (1 − Φ(x))ᵏ dx (Tippett, L. H. C., 1925, Biometrika 17 [memory];
+    tabulated as d₂ in quality-control texts, e.g. Montgomery, *Introduction to
+    Statistical Quality Control*, Appendix VI). 0 for k < 2."""
+    if k < 2:
+        return 0.0
+    f = lambda x: 1.0 - stats.norm.cdf(x) ** k - stats.norm.sf(x) ** k  # noqa: E731
+    return float(integrate.quad(f, -np.inf, np.inf)[0])
+
+
+def stage_sd(candidates, noise) -> np.ndarray:
+    """Standard deviation (m) of each transect's bankfull stage: the automatic methods'
+    range over d₂(k) (k methods that found a stage) combined with the noise σ (t,)."""
+    cand = np.asarray(candidates, dtype=float).reshape(len(noise), -1)
+    found = np.isfinite(cand)
+    k = found.sum(axis=1)
+    with np.errstate(invalid="ignore"):
+        spread = np.where(k >= 2, np.nanmax(np.where(found, cand, -np.inf), axis=1)
+                          - np.nanmin(np.where(found, cand, np.inf), axis=1), 0.0)
+    d2 = np.array([expected_range(int(v)) for v in k])
+    method = np.where(d2 > 0, spread / np.where(d2 > 0, d2, 1.0), 0.0)
+    sn = np.nan_to_num(np.asarray(noise, dtype=float))
+    return np.hypot(method, sn)
+
+
+def slope_log_sd(chainage, z, slope, window) -> tuple[np.ndarray, int]:
+    """Log-standard deviation of each station's slope, and the stations a window spans.
+
+    The profile's scatter σ_z is the normal-scaled MAD of each point's residual about
+    the line through its neighbours, scaled for independent errors (÷ √(1 + a² + b²)
+    with a, b the interpolation weights). The slope's standard error over a window of
+    points at chainages c is σ_z / √Σ(c − c̄)², the least-squares figure (Theil–Sen's
+    efficiency for normal errors is close to it: Sen 1968 [memory]); over the slope
+    (delta method) it is the log-sd, capped at :data:`MAX_LOG_SD`."""
+    c = np.asarray(chainage, dtype=float)
+    z = np.asarray(z, dtype=float)
+    s = np.asarray(slope, dtype=float)
+    ok = np.isfinite(c) & np.isfinite(z)
+    cv, zv = c[ok], z[ok]
+    if cv.size < 4:
+        return np.zeros(c.size), 1
+    a = (cv[2:] - cv[1:-1]) / (cv[2:] - cv[:-2])
+    r = (zv[1:-1] - a * zv[:-2] - (1 - a) * zv[2:]) / np.sqrt(1 + a ** 2 + (1 - a) ** 2)
+    sigma = float(stats.median_abs_deviation(r, scale="normal"))
+    lo = np.searchsorted(cv, c - window / 2, side="left")
+    hi = np.searchsorted(cv, c + window / 2, side="right")
+    c1 = np.concatenate([[0.0], np.cumsum(cv)])
+    c2 = np.concatenate([[0.0], np.cumsum(cv ** 2)])
+    n = hi - lo
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sxx = (c2[hi] - c2[lo]) - (c1[hi] - c1[lo]) ** 2 / n
+        sd = sigma / np.sqrt(sxx) / s
+    good = np.isfinite(sd) & (n >= 2)
+    fill = float(np.median(sd[good])) if good.any() else 0.0
+    sd = np.minimum(np.where(good, sd, fill), MAX_LOG_SD)
+    return sd, max(1, int(np.median(n)))
+
+
+def cowan_ranges(terms: dict) -> tuple[np.ndarray, np.ndarray, float]:
+    """Bounds (5,) of Cowan's nb, n1..n4 for a reach's terms: the envelope of the
+    classes of Arcement & Schneider (1989), Table 1, whose range holds each value (the
+    value alone where none does); and the meander multiplier m."""
+    lo, hi = np.empty(5), np.empty(5)
+    for i, (key, table) in enumerate(zip(COWAN_KEYS, COWAN_TABLES)):
+        v = float(terms[key])
+        hits = [r for r in table.values() if r[0] - 1e-12 <= v <= r[1] + 1e-12]
+        lo[i] = min((r[0] for r in hits), default=v)
+        hi[i] = max((r[1] for r in hits), default=v)
+    return lo, hi, float(terms["meander"])
+
+
+@dataclass(frozen=True)
+class Spread:
+    """The uncertain inputs of one reach's t transects (SI).
+
+    n_lo, n_hi (t, 3): bounds of a uniform n per part; cowan: None, or (lo (5,),
+    hi (5,), meander) to draw the channel n by Cowan's sum instead; slope (t,) the
+    lognormal's median, slope_sd (t,) its log-sd, slope_span stations one window
+    spans; stage (t,) the picks, stage_sd (t,) m; point_sd m (per sample) and
+    offset_sd m (shared by the reach) of the ground."""
+
+    n_lo: np.ndarray
+    n_hi: np.ndarray
+    cowan: tuple | None
+    slope: np.ndarray
+    slope_sd: np.ndarray
+    slope_span: int
+    stage: np.ndarray
+    stage_sd: np.ndarray
+    point_sd: float = 0.0
+    offset_sd: float = 0.0
+
+
+@dataclass(frozen=True)
+class Draws:
+    """n (D, t, 3), slope (D, t), stage (D, t) (offset included), offset (D,) m."""
+
+    n: np.ndarray
+    slope: np.ndarray
+    stage: np.ndarray
+    offset: np.ndarray
+
+
+def draw_inputs(s: Spread, draws: int, rng: np.random.Generator) -> Draws:
+    """One value of every input per draw, in a fixed order of the generator's calls."""
+    t = s.stage.size
+    u = rng.random((draws, 1, 3))          # one quantile per part, shared by the transects
+    n = s.n_lo[None] + u * (s.n_hi - s.n_lo)[None]
+    if s.cowan is not None:
+        lo, hi, m = s.cowan
+        terms = lo[None] + rng.random((draws, lo.size)) * (hi - lo)[None]
+        n[:, :, 1] = (terms.sum(axis=1) * m)[:, None]
+    w = max(1, min(int(s.slope_span), max(t, 1)))
+    e = rng.standard_normal((draws, t + w - 1))
+    cs = np.concatenate([np.zeros((draws, 1)), np.cumsum(e, axis=1)], axis=1)
+    zeta = (cs[:, w:] - cs[:, :-w]) / np.sqrt(w)   # moving sum of w unit normals, unit variance
+    slope = s.slope[None] * np.exp(s.slope_sd[None] * zeta)
+    offset = s.offset_sd * rng.standard_normal(draws)
+    stage = s.stage[None] + s.stage_sd[None] * rng.standard_normal((draws, t)) + offset[:, None]
+    return Draws(n, slope, stage, offset)
+
+
+def _perturbed(p: K.Profiles, rows, offset, point_sd, rng) -> K.Profiles:
+    """The profiles ``rows`` once per draw, moved by the draw's offset plus
+    independent noise of ``point_sd`` on every sample; thalweg column and bed level
+    (moved by the offset) as before."""
+    d, r, m = offset.size, rows.size, p.z.shape[1]
+    inside = np.arange(m)[None, :] < p.size[rows, None]
+    z = np.where(inside, p.z[rows], np.nan)[None] + offset[:, None, None]
+    if point_sd > 0:
+        z = z + point_sd * rng.standard_normal((d, r, m))
+    x = np.tile(p.x[rows], (d, 1))
+    bed = (p.thalweg[rows][None, :] + offset[:, None]).ravel()
+    return K.profiles(x, z.reshape(d * r, m), thalweg=np.tile(p.i0[rows], d), bed=bed)
+
+
+@dataclass(frozen=True)
+class Samples:
+    """Per draw: channel and whole-section discharge at the drawn bankfull stage
+    (D, t; NaN off ``rows``) and the whole-section discharge at each rating depth
+    (D, len(rows), k)."""
+
+    channel: np.ndarray
+    total: np.ndarray
+    rating: np.ndarray
+
+
+def propagate(p: K.Profiles, banks, s: Spread, dr: Draws, rows, depths, rng,
+              units: str = "si") -> Samples:
+    """Run the kernel for every draw on the transects ``rows``: Manning discharge by
+    the divided-channel method at the drawn bankfull stage (channel part and whole
+    section) and at ``depths`` above the thalweg (rating curves). Blocks of draws
+    keep each call under :data:`CELLS` cells."""
+    rows = np.asarray(rows, dtype=int)
+    D, t = dr.stage.shape
+    depths = np.asarray(depths, dtype=float)
+    k, r = depths.size, rows.size
+    channel, total = np.full((D, t), np.nan), np.full((D, t), np.nan)
+    rating = np.full((D, r, k), np.nan)
+    if r == 0:
+        return Samples(channel, total, rating)
+    moved = s.point_sd > 0 or s.offset_sd > 0
+    block = max(1, CELLS // (r * max(k, 1)))
+    for a in range(0, D, block):
+        b = min(D, a + block)
+        pp = (_perturbed(p, rows, dr.offset[a:b], s.point_sd, rng) if moved
+              else p.take(np.tile(rows, b - a)))
+        sl = dr.slope[a:b][:, rows].ravel()
+        nn = dr.n[a:b][:, rows].reshape(-1, 3)
+        bk = np.tile(np.asarray(banks, dtype=float)[rows], (b - a, 1))
+        fl = K.flow(pp, dr.stage[a:b][:, rows].ravel(), sl, nn, bk, units)
+        channel[a:b, rows] = fl.part_discharge[1, :, 0].reshape(b - a, r)
+        total[a:b, rows] = fl.discharge[:, 0].reshape(b - a, r)
+        if k:
+            q = K.flow(pp, pp.thalweg[:, None] + depths[None, :], sl, nn, bk, units).discharge
+            rating[a:b] = q.reshape(b - a, r, k)
+    return Samples(channel, total, rating)
+
+
+def _quantiles(a, axis=0) -> np.ndarray:
+    """p10, p50, p90 along ``axis`` ignoring NaN; NaN where a slice has none."""
+    a = np.asarray(a, dtype=float)
+    has = np.isfinite(a).any(axis=axis)
+    with np.errstate(all="ignore"):
+        filled = np.where(np.isfinite(a).any(axis=axis, keepdims=True), a, 0.0)
+        q = np.nanquantile(filled, QUANTILES, axis=axis)
+    return np.where(has[None], q, np.nan)
+
+
+def _median_rows(a, mask) -> np.ndarray:
+    """Median over the columns ``mask`` of each row of ``a`` (D, t); NaN without any."""
+    sel = np.where(np.asarray(mask, bool)[None, :], a, np.nan)
+    return _quantiles(sel, axis=1)[1]
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """transect: discharge_p10/p50/p90 (t,); reach: the same of the reach median;
+    rating (3, r, k) and reach_rating (3, k): p10/p50/p90 of the rating discharge;
+    p_out (t, f), p_out_reach (f,): share of draws a design flow leaves the channel;
+    flows: the flows' names in that order."""
+
+    transect: dict
+    reach: dict
+    rating: np.ndarray
+    reach_rating: np.ndarray
+    p_out: np.ndarray
+    p_out_reach: np.ndarray
+    flows: list
+
+
+def summarise(sm: Samples, flows: dict, published, use) -> Outcome:
+    """Percentiles over the draws. A transect's band is that of its channel discharge
+    at the bankfull stage (NaN where no stage is published); the reach's is that of
+    the median over the trusted picks (``use``) of each draw, the same median that
+    gives the reach's ``discharge``. A design flow leaves the channel in a draw where it
+    exceeds what fills the section to the drawn bankfull stage (the whole-section
+    discharge, as ``q_ratio``; below the bankfull stage discharge rises with stage, so
+    this is the normal stage lying above it); at the reach, where it exceeds the
+    median of that over the trusted picks (as the reach's ``out_of_bank``)."""
+    pub = np.asarray(published, bool)
+    ch = np.where(pub[None], sm.channel, np.nan)
+    tot = np.where(pub[None], sm.total, np.nan)
+    tq = _quantiles(ch)
+    rq = _quantiles(_median_rows(ch, use))
+    names = list(flows)
+    qd = np.array([float(flows[f]) for f in names])
+    with np.errstate(invalid="ignore"):
+        out = (qd[None, None, :] > tot[:, :, None]).mean(axis=0)
+        p_out = np.where(np.isfinite(tot).all(axis=0)[:, None], out, np.nan)
+        med = _median_rows(tot, use)
+        p_reach = np.where(np.isfinite(med).all(), (qd[None, :] > med[:, None]).mean(axis=0),
+                           np.nan)
+    d, r, k = sm.rating.shape
+    with np.errstate(all="ignore"):
+        reach_curve = _quantiles(sm.rating, axis=1)[1] if r else np.full((d, k), np.nan)
+    keys = [f"discharge_p{round(q * 100)}" for q in QUANTILES]
+    return Outcome(dict(zip(keys, tq)), {k: float(v) for k, v in zip(keys, rq)},
+                   _quantiles(sm.rating), _quantiles(reach_curve), p_out, p_reach, names)
+
+
+def assess(u: UncertaintyParams, rid, p: K.Profiles, picks, banks, slope, n, n_src, ok,
+           published, use, depths, flows, profile, cowan=None) -> Outcome:
+    """The uncertainty of one reach's results: the inputs' spreads from the reach's
+    own data (module docstring), ``u.draws`` draws from the reach's generator,
+    the kernel over them and the percentiles (:func:`summarise`)."""
+    t = p.count
+    rng = generator(u.seed, rid)
+    lo, hi = n * (1 - REL_N), n * (1 + REL_N)
+    src = str(n_src[0]) if len(n_src) else ""
+    terms = cowan.get(rid) if cowan and src.startswith("cowan") else None
+    if u.n_range:
+        lo[:, 1], hi[:, 1] = u.n_range
+        terms = None
+    prof = profile.sort_values("chainage")
+    sl_sd, span = slope_log_sd(prof["chainage"], prof["z_used"], slope, u.slope_window)
+    noise = np.nan_to_num(np.asarray(picks.noise, dtype=float))
+    sigma = float(np.median(noise[ok])) if ok.any() else 0.0
+    point = offset = 0.0
+    if u.vertical_accuracy:
+        point = min(sigma, u.vertical_accuracy)
+        offset = float(np.sqrt(max(u.vertical_accuracy ** 2 - point ** 2, 0.0)))
+    stage = np.where(published, picks.stage, p.thalweg)
+    spread = Spread(lo, hi, cowan_ranges(terms) if terms else None, np.asarray(slope, float),
+                    sl_sd, span, stage, np.where(published, stage_sd(picks.candidates, noise), 0.0),
+                    point, offset)
+    dr = draw_inputs(spread, u.draws, rng)
+    sm = propagate(p, banks, spread, dr, np.nonzero(ok)[0], depths, rng)
+    return summarise(sm, flows, published, use)
+
+
+def merge(out: Outcome, tr, reach_row: dict, curves, design) -> None:
+    """Write an :func:`assess` outcome into the reach's tables (in place): transect
+    and reach percentiles, the rating curves' p10/p90 (their rows: each valid transect
+    at every depth, then the reach curve) and each design check's ``p_out_of_bank``."""
+    for key, v in out.transect.items():
+        tr[key] = v
+    reach_row.update(out.reach)
+    st = curves["station"].to_numpy(int)
+    own = st >= 0
+    r, k = out.rating.shape[1:]
+    if own.sum() == r * k:
+        for j, key in ((0, "discharge_p10"), (2, "discharge_p90")):
+            col = np.full(len(curves), np.nan)
+            col[own] = out.rating[j].ravel()
+            if k and (~own).any():   # the reach curve's rows by their depth
+                d = curves["depth"].to_numpy(float)[~own]
+                grid = curves["depth"].to_numpy(float)[own][:k]
+                col[~own] = out.reach_rating[j][np.abs(d[:, None] - grid[None]).argmin(axis=1)]
+            curves[key] = col
+    if len(design):
+        fi = {f: i for i, f in enumerate(out.flows)}
+        f = np.array([fi[x] for x in design["flow"]])
+        s = design["station"].to_numpy(int)
+        design["p_out_of_bank"] = np.where(s >= 0, out.p_out[np.maximum(s, 0), f],
+                                           out.p_out_reach[f])
