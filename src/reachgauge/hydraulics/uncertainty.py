@@ -275,6 +275,8 @@ def _quantiles(a, axis=0) -> np.ndarray:
     """p10, p50, p90 along ``axis`` ignoring NaN; NaN where a slice has none."""
     a = np.asarray(a, dtype=float)
     has = np.isfinite(a).any(axis=axis)
+    if a.size == 0:
+        return np.full((len(QUANTILES),) + has.shape, np.nan)
     with np.errstate(all="ignore"):
         filled = np.where(np.isfinite(a).any(axis=axis, keepdims=True), a, 0.0)
         q = np.nanquantile(filled, QUANTILES, axis=axis)
