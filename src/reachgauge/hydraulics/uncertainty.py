@@ -33,12 +33,14 @@ only bounds are known):
 - **Terrain elevation**, from ``--vertical-accuracy`` (RMSE, m). A lidar's vertical
   error has a part shared over a flight strip (kilometres: a reach) and a random part
   per point. The random part shows in the data as the scatter the terrain's noise σ
-  measures; the rest, √(RMSE² − σ²), cannot be seen in the data and is applied as one
-  common offset per reach and draw; the random part, min(σ, RMSE), as independent
-  noise on every sample. The common offset moves ground and picked stage together, so
-  it leaves the bankfull discharge and the freeboard unchanged and shifts only where
-  the water stands in absolute elevation. Without ``--vertical-accuracy`` the ground is
-  taken as exact.
+  measures; the rest, √(RMSE² − σ²), cannot be seen in the data. The random part,
+  min(σ, RMSE), is drawn as independent noise on every sample (on :data:`GROUNDS`
+  realisations of the ground, see :func:`propagate`). The shared part would move the
+  ground and the stage picked on it together: it changes neither the bankfull
+  discharge, nor the rating curves (by depth above the thalweg), nor the design-flow
+  checks (stage and bankfull stage move alike), only where the water stands in
+  absolute elevation, which no banded figure reports; so it is not drawn. Without
+  ``--vertical-accuracy`` the ground is taken as exact.
 
 Reproducible: each reach's draws come from a generator seeded by the run's seed and a
 stable hash of the reach id (:func:`generator`), so the figures do not depend on the
@@ -61,6 +63,7 @@ REL_N = 0.20          # ±20 % around a single n (common practice)
 MAX_LOG_SD = 1.0      # slope: a log-sd above 1 (a factor e) says the fit knows nothing more
 QUANTILES = (0.10, 0.50, 0.90)
 CELLS = 1 << 20       # (profiles × stages) cells of one kernel call (bounds memory)
+GROUNDS = 25          # realisations of the ground's noise (shared in turn by the draws)
 COWAN_TABLES = (roughness.COWAN_BASE, roughness.COWAN_IRREGULARITY, roughness.COWAN_VARIATION,
                 roughness.COWAN_OBSTRUCTION, roughness.COWAN_VEGETATION)
 COWAN_KEYS = ("base", "irregularity", "variation", "obstruction", "vegetation")
@@ -170,8 +173,8 @@ class Spread:
     n_lo, n_hi (t, 3): bounds of a uniform n per part; cowan: None, or (lo (5,),
     hi (5,), meander) to draw the channel n by Cowan's sum instead; slope (t,) the
     lognormal's median, slope_sd (t,) its log-sd, slope_span stations one window
-    spans; stage (t,) the picks, stage_sd (t,) m; point_sd m (per sample) and
-    offset_sd m (shared by the reach) of the ground."""
+    spans; stage (t,) the picks, stage_sd (t,) m; point_sd m: the ground's random
+    error per sample."""
 
     n_lo: np.ndarray
     n_hi: np.ndarray
@@ -182,17 +185,15 @@ class Spread:
     stage: np.ndarray
     stage_sd: np.ndarray
     point_sd: float = 0.0
-    offset_sd: float = 0.0
 
 
 @dataclass(frozen=True)
 class Draws:
-    """n (D, t, 3), slope (D, t), stage (D, t) (offset included), offset (D,) m."""
+    """n (D, t, 3), slope (D, t), stage (D, t) m."""
 
     n: np.ndarray
     slope: np.ndarray
     stage: np.ndarray
-    offset: np.ndarray
 
 
 def draw_inputs(s: Spread, draws: int, rng: np.random.Generator) -> Draws:
@@ -209,23 +210,25 @@ def draw_inputs(s: Spread, draws: int, rng: np.random.Generator) -> Draws:
     cs = np.concatenate([np.zeros((draws, 1)), np.cumsum(e, axis=1)], axis=1)
     zeta = (cs[:, w:] - cs[:, :-w]) / np.sqrt(w)   # moving sum of w unit normals, unit variance
     slope = s.slope[None] * np.exp(s.slope_sd[None] * zeta)
-    offset = s.offset_sd * rng.standard_normal(draws)
-    stage = s.stage[None] + s.stage_sd[None] * rng.standard_normal((draws, t)) + offset[:, None]
-    return Draws(n, slope, stage, offset)
+    stage = s.stage[None] + s.stage_sd[None] * rng.standard_normal((draws, t))
+    return Draws(n, slope, stage)
 
 
-def _perturbed(p: K.Profiles, rows, offset, point_sd, rng) -> K.Profiles:
-    """The profiles ``rows`` once per draw, moved by the draw's offset plus
-    independent noise of ``point_sd`` on every sample; thalweg column and bed level
-    (moved by the offset) as before."""
-    d, r, m = offset.size, rows.size, p.z.shape[1]
+def _perturbed(p: K.Profiles, rows, copies: int, point_sd, rng) -> K.Profiles:
+    """``copies`` copies of the profiles ``rows`` (copy-major), each with independent
+    noise of ``point_sd`` (m) on every sample; thalweg column and bed level kept."""
+    r, m = rows.size, p.z.shape[1]
     inside = np.arange(m)[None, :] < p.size[rows, None]
-    z = np.where(inside, p.z[rows], np.nan)[None] + offset[:, None, None]
-    if point_sd > 0:
-        z = z + point_sd * rng.standard_normal((d, r, m))
-    x = np.tile(p.x[rows], (d, 1))
-    bed = (p.thalweg[rows][None, :] + offset[:, None]).ravel()
-    return K.profiles(x, z.reshape(d * r, m), thalweg=np.tile(p.i0[rows], d), bed=bed)
+    z = np.where(inside, p.z[rows], np.nan)[None] + point_sd * rng.standard_normal((copies, r, m))
+    return K.profiles(np.tile(p.x[rows], (copies, 1)), z.reshape(copies * r, m),
+                      thalweg=np.tile(p.i0[rows], copies), bed=np.tile(p.thalweg[rows], copies))
+
+
+def _conveyance(pp: K.Profiles, stages, banks, units) -> np.ndarray:
+    """Conveyance (3, rows, k) of left overbank, channel and right overbank at
+    ``stages`` (rows, k): the divided-channel discharge at n = 1 and S = 1, so that
+    Q = √S Σ K_i / n_i (Chow 1959, §6-9)."""
+    return K.flow(pp, stages, 1.0, 1.0, banks, units).part_discharge
 
 
 @dataclass(frozen=True)
@@ -241,46 +244,73 @@ class Samples:
 
 def propagate(p: K.Profiles, banks, s: Spread, dr: Draws, rows, depths, rng,
               units: str = "si") -> Samples:
-    """Run the kernel for every draw on the transects ``rows``: Manning discharge by
-    the divided-channel method at the drawn bankfull stage (channel part and whole
-    section) and at ``depths`` above the thalweg (rating curves). Blocks of draws
-    keep each call under :data:`CELLS` cells."""
+    """Discharge of every draw on the transects ``rows`` by the divided-channel method:
+    at the drawn bankfull stage (channel part and whole section) and at ``depths``
+    above the thalweg (rating curves).
+
+    n and slope enter Manning's equation as factors (Q = √S Σ K_i / n_i), so the kernel
+    runs once per ground and stage for the conveyances K_i and each draw combines
+    them with its own n and slope. With exact ground that is one ground; with noise on
+    the samples, :data:`GROUNDS` realisations of it, draw d taking ground d mod
+    GROUNDS (its effect on conveyance at a stage is small and smooth; the other inputs
+    vary in every draw). Blocks of grounds keep each call under :data:`CELLS` cells."""
     rows = np.asarray(rows, dtype=int)
     D, t = dr.stage.shape
     depths = np.asarray(depths, dtype=float)
     k, r = depths.size, rows.size
     channel, total = np.full((D, t), np.nan), np.full((D, t), np.nan)
     rating = np.full((D, r, k), np.nan)
-    if r == 0:
+    if r == 0 or D == 0:
         return Samples(channel, total, rating)
-    moved = s.point_sd > 0 or s.offset_sd > 0
-    block = max(1, CELLS // (r * max(k, 1)))
-    for a in range(0, D, block):
-        b = min(D, a + block)
-        pp = (_perturbed(p, rows, dr.offset[a:b], s.point_sd, rng) if moved
-              else p.take(np.tile(rows, b - a)))
-        sl = dr.slope[a:b][:, rows].ravel()
-        nn = dr.n[a:b][:, rows].reshape(-1, 3)
-        bk = np.tile(np.asarray(banks, dtype=float)[rows], (b - a, 1))
-        fl = K.flow(pp, dr.stage[a:b][:, rows].ravel(), sl, nn, bk, units)
-        channel[a:b, rows] = fl.part_discharge[1, :, 0].reshape(b - a, r)
-        total[a:b, rows] = fl.discharge[:, 0].reshape(b - a, r)
+    G = min(D, GROUNDS) if s.point_sd > 0 else 1
+    per = -(-D // G)                                    # draws per ground
+    inv_n = 1.0 / dr.n[:, rows, :]                      # (D, r, 3)
+    sq = np.sqrt(dr.slope[:, rows])                     # (D, r)
+    bk = np.asarray(banks, dtype=float)[rows]
+    block = max(1, CELLS // (r * max(k, per)))
+    for g0 in range(0, G, block):
+        gs = np.arange(g0, min(G, g0 + block))
+        pp = (_perturbed(p, rows, gs.size, s.point_sd, rng) if s.point_sd > 0
+              else p.take(rows))
+        bkg = np.tile(bk, (gs.size, 1))
+        d = gs[:, None] + G * np.arange(per)[None, :]   # (g, per) the draws on each ground
+        live = d < D
+        st = dr.stage[np.minimum(d, D - 1)][:, :, rows]  # (g, per, r)
+        grid = np.where(live[:, :, None], st, pp.thalweg.reshape(gs.size, 1, r))
+        kb = _conveyance(pp, grid.transpose(0, 2, 1).reshape(gs.size * r, per), bkg, units)
+        kb = kb.reshape(3, gs.size, r, per).transpose(0, 1, 3, 2)[:, live]   # (3, draws, r)
+        dd = d[live]
+        parts = kb.transpose(1, 2, 0) * inv_n[dd]       # (draws, r, 3)
+        channel[dd[:, None], rows[None, :]] = sq[dd] * parts[:, :, 1]
+        total[dd[:, None], rows[None, :]] = sq[dd] * parts.sum(axis=2)
         if k:
-            q = K.flow(pp, pp.thalweg[:, None] + depths[None, :], sl, nn, bk, units).discharge
-            rating[a:b] = q.reshape(b - a, r, k)
+            kr = _conveyance(pp, pp.thalweg[:, None] + depths[None, :], bkg, units)
+            kr = kr.reshape(3, gs.size, r, k)
+            for j, g in enumerate(gs):
+                on = np.arange(g, D, G)
+                rating[on] = sq[on][:, :, None] * np.einsum("irk,dri->drk", kr[:, j], inv_n[on])
     return Samples(channel, total, rating)
 
 
 def _quantiles(a, axis=0) -> np.ndarray:
-    """p10, p50, p90 along ``axis`` ignoring NaN; NaN where a slice has none."""
-    a = np.asarray(a, dtype=float)
-    has = np.isfinite(a).any(axis=axis)
+    """p10, p50, p90 along ``axis`` ignoring NaN (linear interpolation between order
+    statistics, numpy's default ``linear`` method); NaN where a slice has none.
+    Vectorised: NaN sorts last, so each slice's finite values come first."""
+    a = np.moveaxis(np.asarray(a, dtype=float), axis, 0)
     if a.size == 0:
-        return np.full((len(QUANTILES),) + has.shape, np.nan)
-    with np.errstate(all="ignore"):
-        filled = np.where(np.isfinite(a).any(axis=axis, keepdims=True), a, 0.0)
-        q = np.nanquantile(filled, QUANTILES, axis=axis)
-    return np.where(has[None], q, np.nan)
+        return np.full((len(QUANTILES),) + a.shape[1:], np.nan)
+    srt = np.sort(a, axis=0)
+    cnt = np.isfinite(a).sum(axis=0)
+    out = np.full((len(QUANTILES),) + a.shape[1:], np.nan)
+    for i, q in enumerate(QUANTILES):
+        pos = q * np.maximum(cnt - 1, 0)
+        lo = np.floor(pos).astype(int)
+        hi = np.minimum(lo + 1, np.maximum(cnt - 1, 0))
+        f = pos - lo
+        vlo = np.take_along_axis(srt, lo[None], axis=0)[0]
+        vhi = np.take_along_axis(srt, hi[None], axis=0)[0]
+        out[i] = np.where(cnt > 0, vlo + f * (vhi - vlo), np.nan)
+    return out
 
 
 def _median_rows(a, mask) -> np.ndarray:
@@ -352,14 +382,13 @@ def assess(u: UncertaintyParams, rid, p: K.Profiles, picks, banks, slope, n, n_s
     sl_sd, span = slope_log_sd(prof["chainage"], prof["z_used"], slope, u.slope_window)
     noise = np.nan_to_num(np.asarray(picks.noise, dtype=float))
     sigma = float(np.median(noise[ok])) if ok.any() else 0.0
-    point = offset = 0.0
-    if u.vertical_accuracy:
-        point = min(sigma, u.vertical_accuracy)
-        offset = float(np.sqrt(max(u.vertical_accuracy ** 2 - point ** 2, 0.0)))
+    # the random part of the RMSE; the rest, shared by the reach, moves ground and stage
+    # alike and changes none of the banded figures (module docstring)
+    point = min(sigma, u.vertical_accuracy) if u.vertical_accuracy else 0.0
     stage = np.where(published, picks.stage, p.thalweg)
     spread = Spread(lo, hi, cowan_ranges(terms) if terms else None, np.asarray(slope, float),
                     sl_sd, span, stage, np.where(published, stage_sd(picks.candidates, noise), 0.0),
-                    point, offset)
+                    point)
     dr = draw_inputs(spread, u.draws, rng)
     sm = propagate(p, banks, spread, dr, np.nonzero(ok)[0], depths, rng)
     return summarise(sm, flows, published, use)
