@@ -25,6 +25,7 @@ import pytest
 import shapely
 
 import terrain_fixtures as tf
+from reachgauge import api
 from reachgauge.hydraulics import uncertainty as U
 from reachgauge.kernel import sections as K
 from reachgauge.transects import slope as slope_mod
@@ -181,26 +182,40 @@ def valley(tmp_path_factory):
     return v.path, streams, flows
 
 
-def run(valley, out, *extra):
+def sha(path) -> str:
+    return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+
+
+def run(valley, out, monkeypatch, **settings):
+    """A run in this process (no start-up cost), creation time fixed."""
+    dem, streams, flows = valley
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", EPOCH)
+    api.run(out, dem=dem, streams=streams, id_field="rid", half_width=30.0, spacing=10.0,
+            design_flows=flows, n_overbank=0.05, **settings)
+    return sha(out)
+
+
+def run_cli(valley, out, *extra):
+    """The same run through the command line (the options as a user types them)."""
     dem, streams, flows = valley
     env = dict(os.environ, SOURCE_DATE_EPOCH=EPOCH)
     src = Path(__file__).resolve().parents[1] / "src"
     env["PYTHONPATH"] = os.pathsep.join([str(src), env.get("PYTHONPATH", "")])
     cmd = [str(EXE), "run", "--dem", str(dem), "--streams", str(streams), "--id-field", "rid",
-           "--half-width", "30", "--spacing", "10", "--design-flows", str(flows), "--out",
+           "--half-width", "30", "--spacing", "10", "--design-flows", str(flows), "--n-overbank", "0.05", "--out",
            str(out), "--quiet", *map(str, extra)]
     r = subprocess.run(cmd, env=env, capture_output=True, text=True)
     assert r.returncode == 0, r.stderr
-    return hashlib.sha256(Path(out).read_bytes()).hexdigest()
+    return sha(out)
 
 
-def test_zero_draws_change_nothing(valley, tmp_path):
+def test_zero_draws_change_nothing(valley, tmp_path, monkeypatch):
     """--uncertainty 0 writes the file a run without the option writes, byte for byte;
     with other uncertainty settings too, every layer but run_info is the same."""
-    plain = run(valley, tmp_path / "a.gpkg")
-    assert run(valley, tmp_path / "b.gpkg", "--uncertainty", 0) == plain
-    run(valley, tmp_path / "c.gpkg", "--uncertainty", 0, "--vertical-accuracy", 0.2,
-        "--n-range", 0.03, 0.05, "--seed", 9)
+    plain = run(valley, tmp_path / "a.gpkg", monkeypatch)
+    assert run_cli(valley, tmp_path / "b.gpkg", "--uncertainty", 0) == plain
+    run_cli(valley, tmp_path / "c.gpkg", "--uncertainty", 0, "--vertical-accuracy", 0.2,
+            "--n-range", 0.03, 0.05, "--seed", 9)
     for layer, new in (("transects", "discharge_p50"), ("reaches", "discharge_p10"),
                        ("rating_curves", "discharge_p90"), ("design_checks", "p_out_of_bank")):
         a = geopandas.read_file(tmp_path / "a.gpkg", layer=layer)
@@ -209,13 +224,13 @@ def test_zero_draws_change_nothing(valley, tmp_path):
         assert a[new].isna().all(), layer
 
 
-def test_same_seed_same_file_whatever_the_executor(valley, tmp_path):
+def test_same_seed_same_file_whatever_the_executor(valley, tmp_path, monkeypatch):
     """Draws seeded by the run seed and the reach id: one process and two give the
     same file (another seed gives other draws: test_generator_depends_on_seed_and_reach_only);
     p10 < p90 and p_out_of_bank in [0, 1]."""
-    opts = ("--uncertainty", 60, "--vertical-accuracy", 0.1)
-    one = run(valley, tmp_path / "one.gpkg", *opts)
-    assert run(valley, tmp_path / "two.gpkg", *opts, "--jobs", 2) == one
+    opts = dict(uncertainty=60, vertical_accuracy=0.1)
+    one = run(valley, tmp_path / "one.gpkg", monkeypatch, **opts)
+    assert run(valley, tmp_path / "two.gpkg", monkeypatch, jobs=2, **opts) == one
     a = geopandas.read_file(tmp_path / "one.gpkg", layer="reaches")
     assert (a["discharge_p10"] < a["discharge_p90"]).all()
     d = geopandas.read_file(tmp_path / "one.gpkg", layer="design_checks")
