@@ -135,16 +135,16 @@ class RunConfig:
                                    "CSV of reach_id, flow, discharge: design flows to check")
     design_flow_fields: tuple[str, ...] = _f((), "stages", "fields of the streams holding design flows")
     # ------------------------------------------------------------- uncertainty
-    uncertainty: int = _f(0, "uncertainty", "Monte Carlo draws for the uncertainty of discharge and "
+    uncertainty: int = _f(0, "monte_carlo", "Monte Carlo draws for the uncertainty of discharge and "
                           "design checks (0: off; a few hundred for stable 10th-90th percentiles)",
                           range=(0, 100_000), closed=True)
-    n_range: tuple[float, ...] = _f((), "uncertainty", "LOW HIGH: bounds of the channel n for the "
+    n_range: tuple[float, ...] = _f((), "monte_carlo", "LOW HIGH: bounds of the channel n for the "
                                     "uncertainty draws (default: its source's range, else ±20 %)",
                                     range=(0, 1))
-    vertical_accuracy: float | None = _f(None, "uncertainty", "vertical accuracy (RMSE) of the "
+    vertical_accuracy: float | None = _f(None, "monte_carlo", "vertical accuracy (RMSE) of the "
                                          "terrain for the uncertainty draws (default: exact)",
                                          length=True, range=(0, 100))
-    seed: int = _f(0, "uncertainty", "seed of the uncertainty draws", range=(0, 2 ** 32 - 1),
+    seed: int = _f(0, "monte_carlo", "seed of the uncertainty draws", range=(0, 2 ** 32 - 1),
                    closed=True)
     # ----------------------------------------------------------------- running
     jobs: int = _f(1, "running", "worker processes (0: one per core)", range=(0, 256),

@@ -20,7 +20,7 @@ GROUP_TITLES = {
     "bankfull": "bankfull stage",
     "roughness": "Manning's n",
     "stages": "stages, rating curves and design flows",
-    "uncertainty": "uncertainty (Monte Carlo)",
+    "monte_carlo": "uncertainty (Monte Carlo)",
     "running": "running",
 }
 
