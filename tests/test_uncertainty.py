@@ -235,3 +235,15 @@ def test_same_seed_same_file_whatever_the_executor(valley, tmp_path, monkeypatch
     assert (a["discharge_p10"] < a["discharge_p90"]).all()
     d = geopandas.read_file(tmp_path / "one.gpkg", layer="design_checks")
     assert d["p_out_of_bank"].between(0, 1).all()
+
+
+def test_cowan_terms_take_the_range_of_their_class():
+    """Each term's bounds are those of the classes of Arcement & Schneider (1989),
+    Table 1, that hold it: base 0.028 is earth (0.025-0.032) or gravel (0.028-0.035),
+    irregularity 0.003 minor (0.001-0.005), variation 0.002 occasional (0.001-0.005),
+    obstruction 0.002 negligible (0-0.004), vegetation 0.003 small (0.002-0.010)."""
+    lo, hi, m = U.cowan_ranges({"base": 0.028, "irregularity": 0.003, "variation": 0.002,
+                                "obstruction": 0.002, "vegetation": 0.003, "meander": 1.15})
+    np.testing.assert_allclose(lo, [0.025, 0.001, 0.001, 0.0, 0.002])
+    np.testing.assert_allclose(hi, [0.035, 0.005, 0.005, 0.004, 0.010])
+    assert m == 1.15
