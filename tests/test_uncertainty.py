@@ -26,6 +26,7 @@ import shapely
 
 import terrain_fixtures as tf
 from reachgauge import api
+from reachgauge.hydraulics import spreads as S
 from reachgauge.hydraulics import uncertainty as U
 from reachgauge.kernel import sections as K
 from reachgauge.transects import slope as slope_mod
@@ -133,10 +134,10 @@ def test_the_band_covers_the_truth_at_its_stated_rate():
 def test_expected_range_of_normal_draws():
     """d₂(k) against the quality-control table (4 significant digits)."""
     for k, d2 in ((2, 1.128), (3, 1.693), (4, 2.059), (5, 2.326)):
-        assert U.expected_range(k) == pytest.approx(d2, abs=6e-4)
-    assert U.expected_range(1) == 0.0
+        assert S.expected_range(k) == pytest.approx(d2, abs=6e-4)
+    assert S.expected_range(1) == 0.0
     # two methods 0.2 m apart and no noise: σ = 0.2 / d₂(2)
-    sd = U.stage_sd(np.array([[100.0, 100.2, np.nan, np.nan]]), np.array([0.0]))
+    sd = S.stage_sd(np.array([[100.0, 100.2, np.nan, np.nan]]), np.array([0.0]))
     assert sd[0] == pytest.approx(0.2 / 1.128, rel=1e-3)
 
 
@@ -152,7 +153,7 @@ def test_slope_spread_matches_the_window_fits_own_scatter():
     fits = np.array([-slope_mod.theil_sen_windows(c, 50 - grade * c + rng.normal(0, sigma, c.size),
                                                   window)[100] for _ in range(300)])
     z = 50 - grade * c + rng.normal(0, sigma, c.size)
-    sd, span = U.slope_log_sd(c, z, np.full(c.size, grade), window)
+    sd, span = S.slope_log_sd(c, z, np.full(c.size, grade), window)
     ratio = np.std(np.log(fits)) / sd[100]
     assert 0.85 <= ratio <= 1.35, ratio
     assert span == 21
@@ -202,8 +203,8 @@ def run_cli(valley, out, *extra):
     src = Path(__file__).resolve().parents[1] / "src"
     env["PYTHONPATH"] = os.pathsep.join([str(src), env.get("PYTHONPATH", "")])
     cmd = [str(EXE), "run", "--dem", str(dem), "--streams", str(streams), "--id-field", "rid",
-           "--half-width", "30", "--spacing", "10", "--design-flows", str(flows), "--n-overbank", "0.05", "--out",
-           str(out), "--quiet", *map(str, extra)]
+           "--half-width", "30", "--spacing", "10", "--design-flows", str(flows),
+           "--n-overbank", "0.05", "--out", str(out), "--quiet", *map(str, extra)]
     r = subprocess.run(cmd, env=env, capture_output=True, text=True)
     assert r.returncode == 0, r.stderr
     return sha(out)
@@ -242,7 +243,7 @@ def test_cowan_terms_take_the_range_of_their_class():
     Table 1, that hold it: base 0.028 is earth (0.025-0.032) or gravel (0.028-0.035),
     irregularity 0.003 minor (0.001-0.005), variation 0.002 occasional (0.001-0.005),
     obstruction 0.002 negligible (0-0.004), vegetation 0.003 small (0.002-0.010)."""
-    lo, hi, m = U.cowan_ranges({"base": 0.028, "irregularity": 0.003, "variation": 0.002,
+    lo, hi, m = S.cowan_ranges({"base": 0.028, "irregularity": 0.003, "variation": 0.002,
                                 "obstruction": 0.002, "vegetation": 0.003, "meander": 1.15})
     np.testing.assert_allclose(lo, [0.025, 0.001, 0.001, 0.0, 0.002])
     np.testing.assert_allclose(hi, [0.035, 0.005, 0.005, 0.004, 0.010])

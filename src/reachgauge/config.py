@@ -135,11 +135,11 @@ class RunConfig:
                                    "CSV of reach_id, flow, discharge: design flows to check")
     design_flow_fields: tuple[str, ...] = _f((), "stages", "fields of the streams holding design flows")
     # ------------------------------------------------------------- uncertainty
-    uncertainty: int = _f(0, "monte_carlo", "Monte Carlo draws for the uncertainty of discharge and "
-                          "design checks (0: off; a few hundred for stable 10th-90th percentiles)",
+    uncertainty: int = _f(0, "monte_carlo", "Monte Carlo draws for the uncertainty of discharge "
+                          "and design checks (0: off; a few hundred for stable 10th-90th percentiles)",
                           range=(0, 100_000), closed=True)
-    n_range: tuple[float, ...] = _f((), "monte_carlo", "LOW HIGH: bounds of the channel n for the "
-                                    "uncertainty draws (default: its source's range, else ±20 %)",
+    n_range: tuple[float, ...] = _f((), "monte_carlo", "LOW HIGH: bounds of the channel n for "
+                                    "the uncertainty draws (default: its source's range, else ±20 %)",
                                     range=(0, 1))
     vertical_accuracy: float | None = _f(None, "monte_carlo", "vertical accuracy (RMSE) of the "
                                          "terrain for the uncertainty draws (default: exact)",
