@@ -24,8 +24,9 @@ only bounds are known):
 - **Slope**, lognormal with its median at the fitted slope and a log-standard
   deviation of the window fit's standard error over the slope
   (:func:`~reachgauge.hydraulics.spreads.slope_log_sd`). Neighbouring stations share
-  most of their window's points, so their errors are drawn as a moving average of independent normals over the
-  window's stations (correlation falling linearly to 0 one window apart).
+  most of their window's points, so their errors are drawn as a moving average of
+  independent normals over the window's stations (correlation falling linearly to 0
+  one window apart).
 - **Bankfull stage**, normal about the pick with a standard deviation combining the
   spread of the automatic methods (their range over the expected range of that many
   normal draws, :func:`~reachgauge.hydraulics.spreads.expected_range`) and the
