@@ -139,7 +139,8 @@ class RunConfig:
                           "and design checks (0: off; a few hundred for stable 10th-90th percentiles)",
                           range=(0, 100_000), closed=True)
     n_range: tuple[float, ...] = _f((), "monte_carlo", "LOW HIGH: bounds of the channel n for "
-                                    "the uncertainty draws (default: its source's range, else ±20 %)",
+                                    "the uncertainty draws (default: its source's range, else "
+                                    "±20 percent)",
                                     range=(0, 1))
     vertical_accuracy: float | None = _f(None, "monte_carlo", "vertical accuracy (RMSE) of the "
                                          "terrain for the uncertainty draws (default: exact)",
