@@ -136,7 +136,8 @@ class RunConfig:
     design_flow_fields: tuple[str, ...] = _f((), "stages", "fields of the streams holding design flows")
     # ------------------------------------------------------------- uncertainty
     uncertainty: int = _f(0, "monte_carlo", "Monte Carlo draws for the uncertainty of discharge "
-                          "and design checks (0: off; a few hundred for stable 10th-90th percentiles)",
+                          "and design checks (0: off; a few hundred for stable 10th-90th "
+                          "percentiles)",
                           range=(0, 100_000), closed=True)
     n_range: tuple[float, ...] = _f((), "monte_carlo", "LOW HIGH: bounds of the channel n for "
                                     "the uncertainty draws (default: its source's range, else "
