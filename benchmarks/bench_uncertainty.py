@@ -45,7 +45,8 @@ def timed(args: list, out: Path, repeats: int) -> tuple[float, float]:
     for _ in range(repeats):
         t0 = time.perf_counter()
         r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
-        r = subprocess.run([sys.executable, "-c", "from reachgauge.cli import main; main()",
+        r = subprocess.run([sys.executable, "-c",
+                            "import sys; from reachgauge.cli import main; sys.exit(main())",
                             *map(str, args), "--out", str(out), "--overwrite", "--quiet"],
                            env=env, capture_output=True, text=True)
         times.append(time.perf_counter() - t0)
@@ -65,9 +66,14 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         d = Path(tmp)
         if a.region:
+            import bench_region
+
+            spacing, _n = bench_region.choose_spacing(a.region / "streams.gpkg", 10_000)
             base = ["run", "--dem", a.region / "terrain.tif", "--streams",
-                    a.region / "streams.gpkg", "--design-flows", a.region / "flows.csv"]
-            what = f"region {a.region}"
+                    a.region / "streams.gpkg", "--design-flows", a.region / "flows.csv",
+                    "--spacing", spacing, "--id-field", "rid", "--half-width",
+                    bench_region.HALF_WIDTH, *bench_speed.RATING]
+            what = f"region of benchmarks/region_data.py, transects every {spacing:g} m"
         else:
             inp = bench_speed.make_inputs(d)
             base = ["run", "--dem", inp["dem"], "--streams", inp["streams"], "--id-field", "rid",
