@@ -849,6 +849,12 @@ observations = "observations.csv"
 
 [stages]
 design_flows = "design_flows.csv"
+
+[monte_carlo]
+# Monte Carlo bands on discharge, rating curves and design checks (JCGM 101:2008);
+# the terrain's vertical accuracy (RMSE, m) is as invented as the basin
+uncertainty = 200
+vertical_accuracy = 0.1
 """
 
 

@@ -163,6 +163,20 @@ class RunConfig:
     depth_grids: Path | None = _f(None, "footprints",
                                   "folder for a depth GeoTIFF per reach and flow (turns "
                                   "--footprints on)")
+    # ------------------------------------------------------------- uncertainty
+    uncertainty: int = _f(0, "monte_carlo", "Monte Carlo draws for the uncertainty of discharge "
+                          "and design checks (0: off; a few hundred for stable 10th-90th "
+                          "percentiles)",
+                          range=(0, 100_000), closed=True)
+    n_range: tuple[float, ...] = _f((), "monte_carlo", "LOW HIGH: bounds of the channel n for "
+                                    "the uncertainty draws (default: its source's range, else "
+                                    "±20 percent)",
+                                    range=(0, 1))
+    vertical_accuracy: float | None = _f(None, "monte_carlo", "vertical accuracy (RMSE) of the "
+                                         "terrain for the uncertainty draws (default: exact)",
+                                         length=True, range=(0, 100))
+    seed: int = _f(0, "monte_carlo", "seed of the uncertainty draws", range=(0, 2 ** 32 - 1),
+                   closed=True)
     # ----------------------------------------------------------------- running
     jobs: int = _f(1, "running", "worker processes (0: one per core)", range=(0, 256),
                    closed=True)

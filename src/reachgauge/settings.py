@@ -224,7 +224,12 @@ def validate(cfg, origin: dict | None = None) -> None:
         check_depth_dir(cfg.depth_grids)
     from reachgauge.hydraulics.roughness import check_n_range  # Chow (1959), Table 5-6
 
-    for name in ("n", "n_overbank"):
+    if cfg.n_range and (len(cfg.n_range) != 2 or not cfg.n_range[0] < cfg.n_range[1]):
+        raise InputError(f"{_name('n_range', origin, ' '.join(f'{v:g}' for v in cfg.n_range))} "
+                         "needs two values, low below high",
+                         "give --n-range LOW HIGH, e.g. --n-range 0.03 0.05")
+
+    for name in ("n", "n_overbank", "n_range"):
         v = getattr(cfg, name)
         if v is not None:
             for note in check_n_range(v, force=cfg.force_n, where=_name(name, origin)):

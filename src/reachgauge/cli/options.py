@@ -22,6 +22,7 @@ GROUP_TITLES = {
     "stages": "stages, rating curves and design flows",
     "drainage": "drainage area",
     "footprints": "design-flow footprints",
+    "monte_carlo": "uncertainty (Monte Carlo)",
     "running": "running",
 }
 

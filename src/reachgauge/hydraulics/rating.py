@@ -56,7 +56,8 @@ def rating_table(p: K.Profiles, rid: str, chainage, depths, slope, n, banks, ok)
     """Rating curves of every valid transect at ``depths`` above its thalweg, plus
     the reach's median curve (station -1: the median of each figure over the
     transects at each depth, staged on the median thalweg)."""
-    cols = [c for c in schema.RATING_FIELDS if c not in ("reach_id", "station", "chainage")]
+    cols = [c for c in schema.RATING_FIELDS if c not in ("reach_id", "station", "chainage",
+                                                         "discharge_p10", "discharge_p90")]
     stages = p.thalweg[:, None] + np.asarray(depths)[None, :]
     table = figure_table(p, rid, chainage, stages, slope, n, banks, ok, cols)
     if not ok.any():

@@ -18,7 +18,8 @@ import pandas as pd
 
 from reachgauge import flags
 from reachgauge.drainage import areas as drainage_areas
-from reachgauge.hydraulics import bankfull, calibration, capacity, rating, roughness, trust
+from reachgauge.hydraulics import (bankfull, calibration, capacity, rating, roughness, trust,
+                                   uncertainty)
 from reachgauge.hydraulics.bankfull.banks import sampling_blur
 from reachgauge.hydraulics.figures import section_figures
 from reachgauge.kernel import sections as K
@@ -37,6 +38,8 @@ class ReachParams:
     drainage_area_field: str | None = None
 
     drainage_area_km2_per_unit: float = 1.0   # the field's unit in km² (mi²: 2.59)
+    uncertainty: uncertainty.UncertaintyParams = field(
+        default_factory=uncertainty.UncertaintyParams)
 
     @classmethod
     def from_config(cls, cfg) -> "ReachParams":
@@ -55,7 +58,8 @@ class ReachParams:
             rating=rating.RatingParams(cfg.rating_step, cfg.rating_max_depth,
                                        tuple(cfg.depths), tuple(cfg.elevations)),
             min_slope=cfg.min_slope, calibrate=cfg.calibrate,
-            drainage_area_field=cfg.drainage_area_field, drainage_area_km2_per_unit=area_unit)
+            drainage_area_field=cfg.drainage_area_field, drainage_area_km2_per_unit=area_unit,
+            uncertainty=uncertainty.UncertaintyParams.from_config(cfg))
 
 
 @dataclass
@@ -243,6 +247,10 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     reach_row = _reach_row(rs, tr, ok, use, summary, n, n_src, n_cal, outlier, reach_flows,
                            (status, message, int(tru.trusted.sum())))
     reach_row.update(da_reach)
+    if params.uncertainty.draws > 0:   # Monte Carlo bands (hydraulics.uncertainty)
+        unc = uncertainty.assess(params.uncertainty, rid, p, picks, banks, slope, n, n_src, ok,
+                                 pub, use, depths, inputs.flows, rs.profile, inputs.cowan)
+        uncertainty.merge(unc, tr, reach_row, curves, design)
     profile = rs.profile.copy()
     profile.insert(0, "reach_id", rid)
     inside = np.arange(p.x.shape[1])[None, :] < p.size[:, None]

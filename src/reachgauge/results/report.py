@@ -327,6 +327,18 @@ def _reach_section(i: int, r, parts: dict, info: _Info) -> str:
             '<p class="top"><a href="#top">back to top</a></p></section>')
 
 
+def _mc_band(r) -> str:
+    """The reach median's 10th-90th percentile over the uncertainty draws, if made."""
+    lo, hi = _f(r.discharge_p10), _f(r.discharge_p90)
+    return f"; uncertainty p10–p90 {_num(lo)}–{_num(hi)}" if np.isfinite(lo + hi) else ""
+
+
+def _mc_share(d) -> str:
+    """The share of uncertainty draws in which a design flow leaves the channel, if made."""
+    p = _f(getattr(d, "p_out_of_bank", np.nan))
+    return f" ({_num(100 * p, 0)} % of draws)" if np.isfinite(p) else ""
+
+
 def _reach_facts(r, info: _Info) -> str:
     u = lambda f: _e(info.unit("reaches", f))  # noqa: E731
     n_back = (f"; back-calculated {_num(r.n_calibrated, 3)}"
@@ -343,7 +355,7 @@ def _reach_facts(r, info: _Info) -> str:
         ("Top width (median)", f"{_num(r.top_width)} {u('top_width')}"),
         ("Bankfull discharge (median)",
          f"{_num(r.discharge)} {u('discharge')} "
-         f"(p25–p75 {_num(r.discharge_p25)}–{_num(r.discharge_p75)})"),
+         f"(p25–p75 {_num(r.discharge_p25)}–{_num(r.discharge_p75)}{_mc_band(r)})"),
         ("Velocity (median)", f"{_num(r.velocity)} {u('velocity')}"),
         ("Manning's n",
          f"{_num(r.n_channel, 3)} ({_e(r.n_source) or 'source not recorded'}){n_back}"),
@@ -362,7 +374,7 @@ def _design_table(design: pd.DataFrame, info: _Info) -> str:
     rows = [f"<tr class='{'flagged' if _truthy(d.out_of_bank) else ''}'><td>{_e(d.flow)}</td>"
             f"<td>{_num(d.discharge)}</td><td>{_num(d.q_ratio, 2)}</td>"
             f"<td>{_num(100 * _f(d.share_out), 0)} %</td>"
-            f"<td>{'yes' if _truthy(d.out_of_bank) else 'no'}</td></tr>"
+            f"<td>{'yes' if _truthy(d.out_of_bank) else 'no'}{_mc_share(d)}</td></tr>"
             for d in reach_rows.itertuples(index=False)]
     head = ["design flow", _e(info.head("design_checks", "discharge", "discharge")),
             "design / bankfull", "transects out of bank", "leaves the channel"]

@@ -256,6 +256,17 @@ def _legend(ax, handles=None, loc: str = "best") -> None:
         text.set_parse_math(False)
 
 
+def _band(ax, med: pd.DataFrame) -> None:
+    """The reach curve's 10th-90th percentile band over the uncertainty draws, where
+    the run made them (``--uncertainty``)."""
+    lo, hi = (med[c].to_numpy(float) if c in med else np.full(len(med), np.nan)
+              for c in ("discharge_p10", "discharge_p90"))
+    ok = np.isfinite(lo) & np.isfinite(hi)
+    if ok.any():
+        ax.fill_betweenx(med["depth"].to_numpy(float)[ok], lo[ok], hi[ok], color=WATER,
+                         alpha=0.55, lw=0, label="reach median, 10th-90th percentile")
+
+
 def _rating_png(rating: pd.DataFrame, design: pd.DataFrame, r, info) -> str:
     from matplotlib.collections import LineCollection
 
@@ -270,11 +281,15 @@ def _rating_png(rating: pd.DataFrame, design: pd.DataFrame, r, info) -> str:
                                          label="transects"))
     med = rating[rating["station"] == -1].sort_values("depth")
     if len(med):
+        _band(ax, med)
         ax.plot(med["discharge"].to_numpy(float), med["depth"].to_numpy(float), color="#1f3b57",
                 lw=2.4, label="reach median")
     if np.isfinite(_f(r.discharge)) and np.isfinite(_f(r.bankfull_depth)):
-        ax.plot([_f(r.discharge)], [_f(r.bankfull_depth)], marker="D", ms=6, color=WATER_EDGE,
-                ls="none", label="median bankfull")
+        lo, hi = _f(getattr(r, "discharge_p10", np.nan)), _f(getattr(r, "discharge_p90", np.nan))
+        err = ([[_f(r.discharge) - lo], [hi - _f(r.discharge)]]
+               if np.isfinite(lo) and np.isfinite(hi) else None)
+        ax.errorbar([_f(r.discharge)], [_f(r.bankfull_depth)], xerr=err, marker="D", ms=6,
+                    color=WATER_EDGE, ls="none", capsize=3, label="median bankfull")
     flows = design.drop_duplicates("flow")
     for j, d in enumerate(flows.itertuples(index=False)):
         q = _f(d.discharge)

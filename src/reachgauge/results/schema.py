@@ -81,6 +81,11 @@ TRANSECT_FIELDS = {
     "q_overbank_right": ("discharge", "discharge of the right overbank strip at the bankfull stage"),
     "discharge_total": ("discharge", "discharge of the whole section at the bankfull stage: channel "
                                      "plus overbank strips (divided-channel method)"),
+    "discharge_p10": ("discharge", "10th percentile of the bankfull channel discharge over the "
+                                   "--uncertainty draws (Monte Carlo; empty without it)"),
+    "discharge_p50": ("discharge", "median of the bankfull channel discharge over the draws"),
+    "discharge_p90": ("discharge", "90th percentile of the bankfull channel discharge over the "
+                                   "draws"),
     "n_observed": ("n", "channel n back-calculated from a measured flow matched to this transect"),
     "min_freeboard": ("length", "least freeboard to bankfull over the design flows (negative: out of bank)"),
     "flows_out": ("text", "design flows that leave the channel here"),
@@ -115,6 +120,12 @@ REACH_FIELDS = {
     "discharge": ("discharge", "median bankfull discharge of the trusted picks"),
     "discharge_p25": ("discharge", "25th percentile of the trusted picks' bankfull discharge"),
     "discharge_p75": ("discharge", "75th percentile of the trusted picks' bankfull discharge"),
+    "discharge_p10": ("discharge", "10th percentile over the --uncertainty draws of each draw's "
+                                   "median bankfull discharge of the trusted picks"),
+    "discharge_p50": ("discharge", "median over the draws of each draw's median bankfull "
+                                   "discharge of the trusted picks"),
+    "discharge_p90": ("discharge", "90th percentile over the draws of each draw's median bankfull "
+                                   "discharge of the trusted picks"),
     "velocity": ("velocity", "median bankfull velocity of the trusted picks"),
     "n_channel": ("n", "Manning's n of the channel used for the reach"),
     "n_source": ("text", "where the channel n came from"),
@@ -183,6 +194,9 @@ RATING_FIELDS = {
     "velocity": ("velocity", "mean velocity of the section, discharge / flow_area"),
     "discharge": ("discharge", "Manning discharge (divided-channel method at the bankfull banks)"),
     "spills": ("flag", "the water reaches an end of the transect"),
+    "discharge_p10": ("discharge", "10th percentile of the discharge at this depth over the "
+                                   "--uncertainty draws (reach curve: of each draw's median)"),
+    "discharge_p90": ("discharge", "90th percentile of the discharge at this depth over the draws"),
 }
 
 SECTION_FIELDS = {  # figures of the whole connected section at a stage (basis: section)
@@ -222,6 +236,8 @@ DESIGN_FIELDS = {
     "stage_at_jump": ("flag", "the flow is carried only once water tops a bank into lower ground "
                               "behind it: the stage is that bank's elevation"),
     "share_out": ("none", "reach row: fraction of transects where the flow is out of bank"),
+    "p_out_of_bank": ("none", "share of the --uncertainty draws in which the flow leaves the "
+                              "channel (reach row: exceeds the draw's median bankfull discharge)"),
 }
 
 PROFILE_FIELDS = {
