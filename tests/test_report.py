@@ -376,3 +376,19 @@ def test_headless_chromium_renders_the_page(html_file, tmp_path):
     assert len(np.unique((img.reshape(-1, 3) * 255).astype(np.uint8), axis=0)) > 50  # not blank
     console = [ln for ln in done.stderr.splitlines() if "CONSOLE" in ln]
     assert not console and "Content Security Policy" not in done.stderr
+
+
+def test_rating_axes_fit_the_flows_asked_about():
+    # a median curve Q = 10·d² for d in 0..3 m (Q up to 90); design flows 5 and 20, bankfull 12:
+    # the axis runs to 1.3 × 20 = 26 and the depth to where the curve carries 26
+    # (d = √2.6 = 1.612 by the closed form), plus 5 %
+    from reachgauge.results.report_figures import rating_limits
+
+    d = np.linspace(0, 3, 61)
+    med = pd.DataFrame({"depth": d, "discharge": 10 * d ** 2})
+    q, depth = rating_limits(med, [5.0, 20.0], 12.0)
+    assert q == pytest.approx(26.0)
+    assert depth == pytest.approx(1.05 * math.sqrt(2.6), rel=2e-3)   # linear interpolation, 5 cm steps
+    assert rating_limits(med, [], float("nan")) == (None, None)
+    # a flow beyond the curve: the whole curve is shown
+    assert rating_limits(med, [200.0], 12.0)[1] == pytest.approx(1.05 * 3.0)

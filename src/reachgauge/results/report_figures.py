@@ -267,6 +267,27 @@ def _band(ax, med: pd.DataFrame) -> None:
                          alpha=0.55, lw=0, label="reach median, 10th-90th percentile")
 
 
+def rating_limits(med: pd.DataFrame, flows, bankfull_q: float, margin: float = 1.3):
+    """(discharge, depth) upper limits of a rating figure: ``margin`` × the largest of
+    the design flows and the bankfull discharge, and the depth at which the reach's
+    median curve carries that discharge (interpolated; its top where it carries less),
+    so the figure shows the flows the reader asked about, not the curve's whole range.
+    (None, None) when there is nothing to fit to."""
+    qs = [float(q) for q in list(flows) + [bankfull_q] if q is not None and np.isfinite(q)]
+    if not qs or max(qs) <= 0:
+        return None, None
+    q_max = margin * max(qs)
+    q, d = med["discharge"].to_numpy(float), med["depth"].to_numpy(float)
+    ok = np.isfinite(q) & np.isfinite(d)
+    if not ok.any():
+        return q_max, None
+    q, d = q[ok], d[ok]
+    order = np.argsort(d)
+    q, d = np.maximum.accumulate(q[order]), d[order]   # a rating rises with depth
+    depth = float(np.interp(q_max, q, d)) if q_max <= q[-1] else float(d[-1])
+    return q_max, depth * 1.05
+
+
 def _rating_png(rating: pd.DataFrame, design: pd.DataFrame, r, info) -> str:
     from matplotlib.collections import LineCollection
 
@@ -297,8 +318,11 @@ def _rating_png(rating: pd.DataFrame, design: pd.DataFrame, r, info) -> str:
             c, dash = FLOW_STYLES[j % len(FLOW_STYLES)]
             ax.axvline(q, color=c, ls=dash, lw=1.3, label=str(d.flow))
     ax.autoscale_view()
-    ax.set_xlim(left=0)
-    ax.set_ylim(bottom=0)
+    q_top, d_top = rating_limits(med, flows["discharge"].to_numpy(float) if len(flows) else [],
+                                 max(_f(r.discharge), _f(getattr(r, "discharge_p90", np.nan)),
+                                     key=lambda v: v if np.isfinite(v) else -np.inf))
+    ax.set_xlim(0, q_top)
+    ax.set_ylim(0, d_top)
     ax.set_xlabel(info.head("rating_curves", "discharge", "discharge"))
     ax.set_ylabel(info.head("rating_curves", "depth", "depth above thalweg"))
     ax.set_title(f"reach {r.reach_id}", fontsize=10, loc="left", parse_math=False)
