@@ -83,7 +83,7 @@ def test_channels_follow_the_valley_floors_split_at_the_confluence(dem, tmp_path
     lines = _ok(net)
     assert len(net.reaches) == 3 and len(lines) == 3
     # trunk first (Strahler order 2, Strahler 1957: two order-1 streams meet), then the branches
-    assert [r.attributes["strahler_order"] for r in net.reaches] == [2, 1, 1]
+    assert [r.stream_order for r in net.reaches] == [2, 1, 1]
     trunk, *branches = (r.geometry for r in lines)
     assert shapely.hausdorff_distance(trunk, TRUNK) <= 2 * RES
     for got in branches:
@@ -133,6 +133,7 @@ def test_a_run_without_streams_writes_the_derived_reaches(dem, tmp_path):
     re = gpd.read_file(out, layer="reaches")
     tr = gpd.read_file(out, layer="transects")
     assert list(re["reach_id"]) == ["c0001", "c0002", "c0003"]
+    assert list(re["stream_order"]) == [2, 1, 1]
     (tmp_path / "again").mkdir()
     derived = _derive(dem, tmp_path / "again")
     for rid, geom in zip(re["reach_id"], re.geometry):

@@ -135,6 +135,7 @@ def derived_network(cfg, folder):
     net = network.load_network(cfg.replace(streams=path, layer=LAYER, id_field=ID_FIELD,
                                            orientation="digitised", streams_crs=None))
     for r in net.reaches:
+        r.stream_order = int(r.attributes[ORDER_FIELD])
         if r.orientation:
             r.orientation = ORIENTATION
     return net

@@ -87,6 +87,7 @@ class Reach:
     source_index: int
     part: int = 0
     start_chainage_m: float = 0.0  # where this piece starts along its source line
+    stream_order: int | None = None  # Strahler order of a channel derived from the terrain
 
 
 @dataclass
