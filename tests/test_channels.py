@@ -181,6 +181,11 @@ def test_channel_area_is_in_square_miles_with_us_units(dem):
     cfg = api.configure(dem=dem, drainage_area="terrain", channel_area=2.0, units="us")
     assert cfg.channel_area == pytest.approx(2.0 * 1.609344 ** 2)
     assert SQ_MILE_KM2 == pytest.approx(2.589988110336)
+    from reachgauge.results.run_info import settings
+
+    assert settings(cfg)["channel_area"] == pytest.approx(2.0)       # shown back in mi²
+    with pytest.raises(InputError, match="mi²"):
+        api.configure(dem=dem, drainage_area="terrain", channel_area=-1.0, units="us")
 
 
 def test_resume_reuses_the_routed_terrain_and_the_derived_channels(dem, tmp_path, monkeypatch):
