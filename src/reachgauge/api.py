@@ -26,14 +26,22 @@ def configure(config=None, **values) -> RunConfig:
 
 
 def require_inputs(cfg: RunConfig) -> None:
-    """The terrain raster and the streams must both be given and exist."""
+    """The terrain raster and the streams must both be given and exist; the
+    streams may be left out when the channels are derived from the terrain
+    (``--drainage-area terrain --channel-area A``)."""
+    from reachgauge.drainage.channels import derives
     from reachgauge.inputs.raster import check_exists
 
-    if cfg.dem is None or cfg.streams is None:
-        raise InputError("the terrain raster and the streams are both needed",
-                         "give --dem RASTER and --streams VECTOR (or set them in --config)")
+    if cfg.dem is None:
+        raise InputError("the terrain raster is needed",
+                         "give --dem RASTER (or set dem in --config)")
+    if cfg.streams is None and not derives(cfg):
+        raise InputError("the streams are needed (or channels derived from the terrain)",
+                         "give --streams VECTOR, or --drainage-area terrain with --channel-area "
+                         "AREA to derive the channels where at least AREA drains")
     check_exists(cfg.dem, "terrain raster", "--dem")
-    check_exists(cfg.streams, "streams file", "--streams")
+    if cfg.streams is not None:
+        check_exists(cfg.streams, "streams file", "--streams")
 
 
 def run(out, *, config=None, overwrite: bool = False, csv=None, report=None,

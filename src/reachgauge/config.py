@@ -3,7 +3,8 @@
 Every length here is in **metres** (the engine works in SI internally); the CLI
 and the TOML reader convert from feet when the run's units are ``"us"``. Each
 field's metadata holds its group (for ``--help`` and the TOML table it lives
-in), its help text, and whether it is a length (converted with the units).
+in), its help text, and whether it is a length (converted with the units) or an area
+(``area``: km², given in mi² with ``--units us``).
 
 The defaults suit a 1 m lidar raster and small to mid-size streams (bankfull
 widths of about 2–30 m): transects every 20 m, 40 m either side of the
@@ -114,6 +115,11 @@ class RunConfig:
                                       "with --drainage-area terrain, route a copy of the terrain "
                                       "averaged F × F cells into one (less memory, coarser areas)",
                                       range=(1, 1000), closed=True)
+    channel_area: float | None = _f(None, "drainage",
+                                    "without --streams: derive the channels from the terrain "
+                                    "where at least this drainage area (km²) flows, split into "
+                                    "reaches at confluences (needs --drainage-area terrain)",
+                                    area=True, range=(0, 1e7))
     regional_curves: Path | None = _f(None, "bankfull",
                                       "CSV of published regional curves to compare the reaches "
                                       "with (name, variable, coefficient, exponent, units, "

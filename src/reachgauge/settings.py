@@ -27,7 +27,7 @@ import numpy as np
 
 from reachgauge.config import FIELDS, MAX_RATING_STAGES, PATH_FIELDS, RunConfig, location
 from reachgauge.errors import InputError, ReachgaugeWarning, shown
-from reachgauge.manning import FOOT
+from reachgauge.manning import FOOT, SQ_MILE_KM2
 
 # samples per transect at most (2 × half-width / sample step)
 MAX_SAMPLES = 100_000
@@ -144,6 +144,8 @@ def _show(key, v_si, units) -> str:
     f = _fields()[key]
     if f.metadata.get("length"):
         return f"{v_si / FOOT:.6g} ft" if units == "us" else f"{v_si:.6g} m"
+    if f.metadata.get("area"):
+        return f"{v_si / SQ_MILE_KM2:.6g} mi²" if units == "us" else f"{v_si:.6g} km²"
     return f"{v_si:.6g}"
 
 
@@ -163,7 +165,8 @@ def _in_range(cfg, key, origin) -> None:
                 f"{_name(key, origin, _show(key, v, cfg.units))} is outside the allowed range: "
                 f"{low} and at most {_show(key, hi, cfg.units)}",
                 f"give a value in that range for {key.replace('_', '-')} ({f.metadata['help']})"
-                + ("; lengths are in ft with --units us" if f.metadata.get("length") else ""))
+                + ("; lengths are in ft with --units us" if f.metadata.get("length") else "")
+                + ("; areas are in mi² with --units us" if f.metadata.get("area") else ""))
 
 
 def validate(cfg, origin: dict | None = None) -> None:
@@ -206,6 +209,7 @@ def validate(cfg, origin: dict | None = None) -> None:
     if cfg.drainage_coarsen not in (None, 1) and cfg.drainage_area is None:
         raise InputError("--drainage-coarsen needs --drainage-area terrain",
                          "add --drainage-area terrain, or leave --drainage-coarsen out")
+    _check_channels(cfg)
     if (cfg.landcover is None) != (cfg.landcover_table is None):
         raise InputError("--landcover and --landcover-table go together",
                          "give both the land-cover raster and its class-to-n CSV")
@@ -234,6 +238,33 @@ def validate(cfg, origin: dict | None = None) -> None:
         if v is not None:
             for note in check_n_range(v, force=cfg.force_n, where=_name(name, origin)):
                 warnings.warn(note, ReachgaugeWarning, stacklevel=4)
+
+
+STREAM_FIELDS = ("layer", "id_field", "name_field", "streams_crs", "half_width_field", "n_field",
+                 "drainage_area_field", "design_flow_fields")
+
+
+def _check_channels(cfg) -> None:
+    """``--channel-area`` derives the channels from the routed terrain, and only
+    when no streams are given; then no setting may name the streams' fields."""
+    if cfg.channel_area is None:
+        return
+    from reachgauge.drainage.grid import is_terrain
+
+    if not is_terrain(cfg.drainage_area):
+        raise InputError("--channel-area needs --drainage-area terrain (the channels are "
+                         "derived from the routed terrain)",
+                         "add --drainage-area terrain, or leave --channel-area out")
+    if cfg.streams is not None:
+        raise InputError("--channel-area derives the channels when no --streams are given, "
+                         "but --streams is given too",
+                         "leave out --streams to derive the channels, or --channel-area to use "
+                         "the streams")
+    named = [k for k in STREAM_FIELDS if getattr(cfg, k) not in (None, ())]
+    if named:
+        raise InputError(f"--{named[0].replace('_', '-')} names a field or layer of the streams, "
+                         "but the channels are derived from the terrain (--channel-area)",
+                         f"leave out --{named[0].replace('_', '-')}, or give --streams")
 
 
 # ------------------------------------------------ building a RunConfig from values
@@ -271,7 +302,8 @@ def build(file_values: dict | None, file_name: str | None, cli_values: dict) -> 
     file_units = file_values.pop("units", None)
     run_units = cli_values.get("units") or file_units or "si"
     lengths = [k for k, v in file_values.items()
-               if FIELDS[k].metadata["length"] and v not in (None, [], ())]
+               if (FIELDS[k].metadata["length"] or FIELDS[k].metadata.get("area"))
+               and v not in (None, [], ())]
     if lengths and file_units is None and run_units != "si":
         raise InputError(
             f"{name} gives lengths ({', '.join(lengths[:4])}) but does not state their unit, "
@@ -286,12 +318,15 @@ def build(file_values: dict | None, file_name: str | None, cli_values: dict) -> 
 
 
 def to_si(values: dict, units: str) -> dict:
-    """Lengths converted from feet when ``units`` is "us"; lists as tuples; paths as
-    Path, except a URL or GDAL virtual path, kept as text (:func:`~reachgauge.config.location`)."""
+    """Lengths converted from feet (areas from mi² to km²) when ``units`` is "us";
+    lists as tuples; paths as Path, except a URL or GDAL virtual path, kept as
+    text (:func:`~reachgauge.config.location`)."""
     out = {}
     for key, val in values.items():
         if FIELDS[key].metadata["length"] and val is not None and units == "us":
             val = tuple(v * FOOT for v in val) if isinstance(val, (list, tuple)) else val * FOOT
+        if FIELDS[key].metadata.get("area") and val is not None and units == "us":
+            val = val * SQ_MILE_KM2
         if isinstance(val, list):
             val = tuple(val)
         if key in PATH_FIELDS and val is not None:

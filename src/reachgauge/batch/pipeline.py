@@ -80,17 +80,24 @@ def compute(cfg: RunConfig, net=None, shared=None, sink=None, done=None,
     object with a ``start(reaches, transects, reaches_done, transects_done)``
     method hears the estimated size first.
     """
+    import tempfile
+
     from reachgauge.batch.keep import Keeper
+    from reachgauge.drainage import attach, channels
 
     t0 = time.perf_counter()
+    sink = sink if sink is not None else KeptInMemory()
+    # issue 12: the drainage-area raster, routed once (kept in the checkpoint
+    # folder, or a temporary one the channels and the tasks share)
+    where, _tmp = sink.folder, None
     if net is None:
-        net = network_mod.load_network(cfg)
+        if channels.derives(cfg) and where is None:
+            _tmp = tempfile.TemporaryDirectory(prefix="reachgauge-drainage-")
+            where = _tmp.name
+        net = load_or_derive(cfg, where)
         outcome.check_network(net, cfg)      # every reach unusable for one cause: exit 2 now
     shared = shared if shared is not None else read_shared_inputs(cfg, net)
-    sink = sink if sink is not None else KeptInMemory()
-    # issue 12: the drainage-area raster, routed once here (kept in the checkpoint folder)
-    from reachgauge.drainage import attach
-    shared, _drainage_tmp = attach(cfg, net, shared, sink.folder)
+    shared, _drainage_tmp = attach(cfg, net, shared, where)
     headers = dict(done or {})
     order = {str(r.reach_id): i for i, r in enumerate(net.reaches)}
     todo = [r for r in net.reaches if str(r.reach_id) not in headers]
@@ -122,18 +129,34 @@ def compute(cfg: RunConfig, net=None, shared=None, sink=None, done=None,
     return RunResult(net, ordered, time.perf_counter() - t0, list(net.warnings), notes, timings)
 
 
+def load_or_derive(cfg: RunConfig, folder):
+    """The run's network: the streams, or (no streams, ``--channel-area``) the
+    channels derived from the terrain routed into ``folder``
+    (:mod:`reachgauge.drainage.channels`)."""
+    from reachgauge.drainage import channels
+
+    if channels.derives(cfg):
+        return channels.derived_network(cfg, folder)
+    return network_mod.load_network(cfg)
+
+
 def identity(cfg: RunConfig, net) -> dict:
     """What a checkpoint must match to be resumed: the version, the settings that
-    decide the result, the inputs' fingerprints and the reaches."""
+    decide the result, the inputs' fingerprints and the reaches. ``net`` None:
+    the reaches are channels derived from the terrain, decided by the version,
+    settings and terrain alone (they are derived after the checkpoint opens)."""
     import hashlib
 
     from reachgauge import __version__
     from reachgauge.results import run_info
 
-    ids = "\n".join(str(r.reach_id) for r in net.reaches).encode()
+    if net is None:
+        reaches = "derived from the terrain"
+    else:
+        ids = "\n".join(str(r.reach_id) for r in net.reaches).encode()
+        reaches = [len(net.reaches), hashlib.sha256(ids).hexdigest()]
     return {"version": __version__, "settings": run_info.settings(cfg),
-            "inputs": run_info.inputs(cfg),
-            "reaches": [len(net.reaches), hashlib.sha256(ids).hexdigest()]}
+            "inputs": run_info.inputs(cfg), "reaches": reaches}
 
 
 def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, report=None,
@@ -146,6 +169,7 @@ def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, r
     from reachgauge import lifecycle
     from reachgauge.batch.checkpoint import Checkpoint
     from reachgauge.batch.summary import summarise
+    from reachgauge.drainage import channels
     from reachgauge.errors import OutputError
     from reachgauge.results.staging import RunOutputs
 
@@ -157,13 +181,20 @@ def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, r
             from reachgauge.flood.grids import check_no_grids
 
             check_no_grids(cfg.depth_grids)
-        net = network_mod.load_network(cfg)
-        outcome.check_network(net, cfg)      # every reach unusable for one cause: exit 2 now
-        shared = read_shared_inputs(cfg, net)
+        # derived channels (issue 12) are made in the checkpoint folder, so after it opens
+        net = shared = None
+        if not channels.derives(cfg):
+            net = network_mod.load_network(cfg)
+            outcome.check_network(net, cfg)      # every reach unusable for one cause: exit 2 now
+            shared = read_shared_inputs(cfg, net)
         store = Checkpoint(out, identity(cfg, net))
         done = store.open(resume)
         kept = len(done)
         try:
+            if net is None:
+                net = load_or_derive(cfg, store.folder)
+                outcome.check_network(net, cfg)
+                shared = read_shared_inputs(cfg, net)
             run = compute(cfg, net, shared, store, done, progress)
             kept = len(run.headers)
             # regional curves (issue 12): over every reach's row, before the file is assembled
@@ -178,7 +209,8 @@ def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, r
                 store.remove()        # nothing to resume, or inputs that must change first
             else:
                 store.close()
-                lifecycle.STATE.resumable = (f"{kept} of {len(net.reaches)} reaches are kept in "
+                total = len(net.reaches) if net is not None else "the"
+                lifecycle.STATE.resumable = (f"{kept} of {total} reaches are kept in "
                                              f"{store.folder}: add --resume to the same command "
                                              "to continue")
                 if isinstance(exc, OutputError):

@@ -150,6 +150,7 @@ def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
     base = {"reach_id": rid, "name": reach.name or "", "status": reach.status,
             "message": reach.message, "orientation": reach.orientation,
             "reach_length": reach.length_m, "transects": 0, "transects_ok": 0,
+            "stream_order": np.nan if reach.stream_order is None else float(reach.stream_order),
             "drainage_area": drainage_area(hydraulics.ReachParams.from_config(cfg),
                                            reach.attributes)}
     if reach.status != "ok":
@@ -177,6 +178,7 @@ def process_reach(raster, reach, cfg: RunConfig, inputs: hydraulics.ReachInputs,
             inputs.drainage = at_transects(inputs.drainage_source, rs.thalweg_xy,
                                            cfg.snap_distance, raster.work_crs, raster.xy_factor)
         res = hydraulics.analyse_reach(rs, hydraulics.ReachParams.from_config(cfg), inputs)
+        res.reach["stream_order"] = base["stream_order"]   # derived channels (issue 12)
         return ReachOutput(rid, res, res.reach, transect_lines=list(rs.transects),
                            thalweg_xy=np.asarray(rs.thalweg_xy), offsets=np.asarray(rs.offsets),
                            footprints=_footprints(raster, rs, res, cfg, neighbours),

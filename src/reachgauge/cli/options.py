@@ -48,6 +48,8 @@ def add_config_options(parser: argparse.ArgumentParser) -> None:
             help_text = f.metadata["help"] + _default_text(f)
             if f.metadata.get("length"):
                 help_text += "; ft with --units us"
+            if f.metadata.get("area"):
+                help_text += "; mi² with --units us"
             hint = hints[f.name]
             kw = dict(dest=f.name, default=None, help=help_text)
             if hint is bool:
@@ -67,6 +69,8 @@ def add_config_options(parser: argparse.ArgumentParser) -> None:
                 kw["metavar"] = "PATH"
             elif f.metadata.get("length"):
                 kw["metavar"] = "M"
+            elif f.metadata.get("area"):
+                kw["metavar"] = "KM2"
             elif f.name.endswith("_field"):
                 kw["metavar"] = "FIELD"
             elif f.name.endswith("_crs"):

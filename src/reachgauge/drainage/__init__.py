@@ -14,6 +14,10 @@ Three sources (``--drainage-area``):
 
 Each reach task then reads only the window of that raster around its thalweg
 points (:mod:`reachgauge.drainage.lookup`), as it reads the terrain.
+
+Without streams, ``--channel-area A`` derives the reaches from the same routed
+raster: channels where at least A km² drains, split at confluences
+(:mod:`reachgauge.drainage.channels`).
 """
 
 from reachgauge.drainage.grid import DrainageSource, attach, prepare

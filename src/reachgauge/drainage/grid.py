@@ -3,12 +3,14 @@
 ``terrain``: the terrain raster is read whole (through the same warped view the
 tasks read, so in the working CRS), optionally averaged onto a coarser grid
 (``--drainage-coarsen F``: F × F cells into one), routed
-(:mod:`reachgauge.drainage.routing`) and written as a tiled GeoTIFF of two
+(:mod:`reachgauge.drainage.routing`) and written as a tiled GeoTIFF of three
 float32 bands, 1: contributing area (km²), 2: 1 where that area is a lower bound
-(the watershed reaches the raster's edge or nodata), else 0. The file lives in
-the run's checkpoint folder under a name made from the terrain's fingerprint,
-grid and factor: ``--resume`` finds and reuses it, and a changed terrain gets a
-new file. It is written under a temporary name and renamed, so a run stopped
+(the watershed reaches the raster's edge or nodata), else 0, 3: the D8 codes
+(pyflwdir's convention) the areas were accumulated along, from which channels
+are derived when no streams are given (:mod:`reachgauge.drainage.channels`).
+The file lives in the run's checkpoint folder under a name made from the
+terrain's fingerprint, grid and factor: ``--resume`` finds and reuses it, and a
+changed terrain gets a new file. It is written under a temporary name and renamed, so a run stopped
 mid-write never leaves a half file to be reused.
 
 A user's flow-accumulation raster is only checked here (CRS, grid, values);
@@ -85,7 +87,7 @@ def _key(raster, factor: int) -> str:
     from reachgauge import drainage  # noqa: F401 - the package's own version is ours
 
     text = repr((raster.fingerprint, raster.path, tuple(raster.transform), raster.width,
-                 raster.height, raster.work_crs.to_wkt(), factor, "d8-v1"))
+                 raster.height, raster.work_crs.to_wkt(), factor, "d8-v2"))
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
@@ -107,7 +109,7 @@ def _read_whole(raster, factor: int):
 def _route_terrain(raster, factor: int, path: Path) -> None:
     import rasterio
 
-    from reachgauge.drainage.routing import route
+    from reachgauge.drainage import routing
 
     z, transform = _read_whole(raster, factor)
     valid = np.isfinite(z)
@@ -115,9 +117,11 @@ def _route_terrain(raster, factor: int, path: Path) -> None:
         raise InputError("the terrain raster holds no data to route for --drainage-area terrain",
                          "give a terrain raster with elevations")
     f = raster.xy_factor     # metres per unit of the working CRS
-    area, lower = route(z, valid, abs(transform.a) * f, abs(transform.e) * f)
+    dx, dy = abs(transform.a) * f, abs(transform.e) * f
+    d8 = routing.d8_directions(z, valid, dx, dy)
     del z
-    profile = {"driver": "GTiff", "width": area.shape[1], "height": area.shape[0], "count": 2,
+    area, lower = routing.contributing_area(d8, dx * dy * 1e-6, routing.open_cells(valid))
+    profile = {"driver": "GTiff", "width": area.shape[1], "height": area.shape[0], "count": 3,
                "dtype": "float32", "crs": raster.work_crs.to_wkt(), "transform": transform,
                "nodata": np.nan, "tiled": True, "blockxsize": 256, "blockysize": 256,
                "compress": "deflate", "BIGTIFF": "IF_SAFER"}
@@ -125,6 +129,7 @@ def _route_terrain(raster, factor: int, path: Path) -> None:
     with rasterio.open(tmp, "w", **profile) as dst:
         dst.write(area, 1)
         dst.write(np.where(valid, lower, np.nan).astype(np.float32), 2)
+        dst.write(d8.astype(np.float32), 3)
     os.replace(tmp, path)
 
 

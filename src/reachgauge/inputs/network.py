@@ -28,6 +28,8 @@ Orientation (``Reach.orientation``, codes our own):
   (or one end has no terrain): kept as drawn;
 - ``as-digitised``: ``cfg.orientation = "digitised"``: the drawn direction is
   trusted and the terrain not consulted.
+- ``by-flow-direction``: a channel derived from the terrain's D8 flow
+  directions (:mod:`reachgauge.drainage.channels`), drawn downstream.
 
 The terrain at an end is the median of five samples along the line's first (or
 last) stretch of ``min(L/4, 10 pixels)``, so one pit or one spike cannot decide.
@@ -85,6 +87,7 @@ class Reach:
     source_index: int
     part: int = 0
     start_chainage_m: float = 0.0  # where this piece starts along its source line
+    stream_order: int | None = None  # Strahler order of a channel derived from the terrain
 
 
 @dataclass

@@ -19,7 +19,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from reachgauge.manning import FOOT
+from reachgauge.manning import FOOT, SQ_MILE_KM2
 
 
 def created_utc() -> str:
@@ -31,7 +31,7 @@ def created_utc() -> str:
 
 def settings(cfg) -> dict:
     """Every setting that decides the result ({name: JSON-ready value}, lengths
-    in the run's units); the ``running`` group (jobs, scheduler) is left out."""
+    and areas in the run's units); the ``running`` group (jobs, scheduler) is left out."""
     out = {}
     for f in dataclasses.fields(cfg):
         if f.metadata.get("group") == "running":
@@ -39,6 +39,8 @@ def settings(cfg) -> dict:
         v = getattr(cfg, f.name)
         if f.metadata.get("length") and v is not None and cfg.units == "us":
             v = tuple(x / FOOT for x in v) if isinstance(v, tuple) else v / FOOT
+        if f.metadata.get("area") and v is not None and cfg.units == "us":
+            v = v / SQ_MILE_KM2
         out[f.name] = json.loads(json.dumps(str(v) if isinstance(v, Path) else v, default=str))
     return out
 

@@ -113,6 +113,8 @@ REACH_FIELDS = {
     "drainage_source": ("text", "where the drainage area came from: terrain, raster or field"),
     "drainage_flags": ("text", "area-lower-bound where the watershed of the reach's area "
                                "leaves the raster"),
+    "stream_order": ("none", "Strahler order of a channel derived from the terrain "
+                             "(--channel-area); empty for given streams"),
     "bankfull_depth": ("length", "median bankfull depth of the trusted picks"),
     "depth_spread": ("length", "interquartile range of the trusted picks' bankfull depths"),
     "top_width": ("length", "median bankfull top width of the trusted picks"),
