@@ -247,7 +247,7 @@ def test_report_map_draws_the_largest_flow_over_a_hillshade(compound, tmp_path):
 
     import geopandas as gpd
 
-    from reachgauge.results.report_figures import footprint_map_png, hillshade
+    from reachgauge.results.report_maps import footprint_map_png, hillshade
 
     d, dem, streams = compound
     outs, _ = run_reaches(dem, streams, {"low": 8.0, "high": 60.0}, tmp_path, half_width=40.0)

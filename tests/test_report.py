@@ -34,7 +34,7 @@ from hypothesis import strategies as st
 
 from reachgauge.cli import entry as cli
 from reachgauge import flags
-from reachgauge.results import report
+from reachgauge.results import report, report_figures, report_maps
 from reachgauge.errors import InputError
 from reachgauge.notices import CAUTIONS
 from report_fixtures import BAD, FLOWS, NAMES, result_layers, write_result
@@ -121,10 +121,10 @@ def test_images_are_embedded_pngs_of_the_expected_size(layers, page, page_text):
     assert page_text.count("data:image/png;base64,") == len(srcs)
     sizes = [png_size(base64.b64decode(s.split(",", 1)[1], validate=True)) for s in srcs]
     # saved without a tight box: pixels = inches × DPI (9.5 in and 6.4 in wide figures)
-    assert sizes[0][0] == round(9.5 * report.DPI)
-    assert sizes[1] == (round(6.4 * report.DPI), round(3.8 * report.DPI))       # rating
-    assert sizes[2] == (round(9.5 * report.DPI), round(3.2 * report.DPI))       # profile
-    assert sizes[3] == (round(9.5 * report.DPI), round(6.0 * report.DPI))       # 2 × 2 sections
+    assert sizes[0][0] == round(9.5 * report_figures.DPI)
+    assert sizes[1] == (round(6.4 * report_figures.DPI), round(3.8 * report_figures.DPI))       # rating
+    assert sizes[2] == (round(9.5 * report_figures.DPI), round(3.2 * report_figures.DPI))       # profile
+    assert sizes[3] == (round(9.5 * report_figures.DPI), round(6.0 * report_figures.DPI))       # 2 × 2 sections
 
 
 def test_no_external_reference_anywhere(page, page_text):
@@ -323,20 +323,20 @@ def cie_lightness(hex_colour: str) -> float:
 
 
 def test_palette_lightness_falls_steadily():
-    assert all(re.fullmatch(r"#[0-9a-f]{6}", c) for c in report.PALETTE)
-    light = np.array([cie_lightness(c) for c in report.PALETTE])
+    assert all(re.fullmatch(r"#[0-9a-f]{6}", c) for c in report_figures.PALETTE)
+    light = np.array([cie_lightness(c) for c in report_figures.PALETTE])
     steps = -np.diff(light)
     # monotone lightness keeps the order readable in any colour-vision deficiency;
     # steps of >= 5 L* are well above a just-noticeable difference (~1 L*)
     assert (steps >= 5).all() and light[0] >= 80 and light[-1] <= 30
-    cmap = report.colour_map()
+    cmap = report_figures.colour_map()
     from matplotlib.colors import to_hex
-    assert to_hex(cmap(0.0)) == report.PALETTE[0] and to_hex(cmap(1.0)) == report.PALETTE[-1]
+    assert to_hex(cmap(0.0)) == report_figures.PALETTE[0] and to_hex(cmap(1.0)) == report_figures.PALETTE[-1]
 
 
 @given(st.floats(1e-3, 1e7))
 def test_scale_bar_is_round_and_fits(span):
-    length = report.scale_length(span)
+    length = report_maps.scale_length(span)
     k = math.floor(math.log10(length) + 1e-12)
     mantissa = length / 10 ** k
     assert min(abs(mantissa - m) for m in (1, 2, 5)) < 1e-9
@@ -350,7 +350,7 @@ def test_line_parts_split_multilines_and_keep_their_source():
     geoms = [shapely.LineString([(0, 0), (1, 0)]), None,
              shapely.MultiLineString([[(0, 1), (1, 1), (2, 1)], [(5, 5), (6, 6)]]),
              shapely.LineString()]
-    parts, src = report.line_parts(geoms)
+    parts, src = report_maps.line_parts(geoms)
     assert [p.shape for p in parts] == [(2, 2), (3, 2), (2, 2)]
     assert list(src) == [0, 2, 2]
     np.testing.assert_array_equal(parts[2], [[5, 5], [6, 6]])

@@ -33,9 +33,9 @@ from reachgauge.errors import InputError
 from reachgauge.notices import CAUTION_LINE, CAUTIONS
 from reachgauge.results.report_regional import regional_section
 from reachgauge.results.report_page import _codes, _e, _figure_html, _page, _table  # noqa: F401
-from reachgauge.results.report_figures import (_map, DPI, INK, NO_VALUE, PALETTE, _crs_unit, _f, _new_figure, _num,  # noqa: F401
-                             _png, _profile_png, _rating_png, _scale_bar, _sections_png, _truthy,
-                             colour_map, line_parts, scale_length)
+from reachgauge.results.report_figures import (_f, _mc_band, _mc_share, _num, _profile_png,
+                                               _rating_png, _sections_png, _truthy)
+from reachgauge.results.report_maps import _map
 
 
 REQUIRED_LAYERS = ("transects", "reaches", "thalweg_points", "rating_curves", "design_checks",
@@ -325,18 +325,6 @@ def _reach_section(i: int, r, parts: dict, info: _Info) -> str:
             f"{_design_table(parts['design_checks'], info)}</div><div>{rating_fig}</div></div>"
             f"{''.join(figs)}<h3>Transects</h3>{_transect_table(tr, info)}"
             '<p class="top"><a href="#top">back to top</a></p></section>')
-
-
-def _mc_band(r) -> str:
-    """The reach median's 10th-90th percentile over the uncertainty draws, if made."""
-    lo, hi = _f(r.discharge_p10), _f(r.discharge_p90)
-    return f"; uncertainty p10–p90 {_num(lo)}–{_num(hi)}" if np.isfinite(lo + hi) else ""
-
-
-def _mc_share(d) -> str:
-    """The share of uncertainty draws in which a design flow leaves the channel, if made."""
-    p = _f(getattr(d, "p_out_of_bank", np.nan))
-    return f" ({_num(100 * p, 0)} % of draws)" if np.isfinite(p) else ""
 
 
 def _reach_facts(r, info: _Info) -> str:
