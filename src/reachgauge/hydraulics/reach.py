@@ -181,8 +181,8 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     slope = np.asarray(rs.slope, dtype=float)
     slope = np.where(np.isfinite(slope) & (slope > 0), slope, params.min_slope)
 
-    area_km2, (da_cols, da_lower), da_reach = drainage_areas.reach_fields(params, rid, reach.attributes,
-                                                             inputs.drainage, t)
+    area_km2, (da_cols, da_lower), da_reach = drainage_areas.reach_fields(
+        params, rid, reach.attributes, inputs.drainage, t)
     ok = np.asarray(rs.transect_status, dtype=object) == "ok"
     z = np.where(ok[:, None], np.asarray(rs.elevations, dtype=float), np.nan)
     # the sections are sampled from the raster: the bank tops are corrected for that blur
@@ -196,15 +196,8 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
     tru, banks = _assess(rs, picks, ok, t)
     pub = tru.published
 
-    n, n_src, unknown = roughness.transect_n(
-        rid, reach.attributes, t, params.roughness, cowan_terms=inputs.cowan,
-        classes=inputs.classes, class_offsets=rs.offsets, class_table=inputs.class_table,
-        banks=banks)
-    cal, n_obs, n_cal = _calibrate(p, rs, inputs.observations, slope, n, banks, ok, rid)
-    if params.calibrate and np.isfinite(n_cal):
-        n[:, 1] = n_cal
-        n_src = np.full(t, "calibrated", dtype=object)
-    unusual = (n[:, 1] < roughness.TABLE_RANGE[0]) | (n[:, 1] > roughness.TABLE_RANGE[1])
+    n, n_src, unknown, unusual, cal, n_obs, n_cal = _roughness(rs, p, params, inputs, slope,
+                                                               banks, ok)
 
     bf = _bankfull_figures(p, picks, slope, n, pub)
     tru = tru.with_froude(bf["froude"])
@@ -258,6 +251,23 @@ def analyse_reach(rs, params: ReachParams, inputs: ReachInputs | None = None) ->
                        calibration=cal, profile=profile, banks=banks,
                        sections_z=np.where(inside, p.z, np.nan),
                        offsets=np.where(inside, p.x - start[:, None], np.nan))
+
+
+def _roughness(rs, p, params: ReachParams, inputs: ReachInputs, slope, banks, ok):
+    """Each transect's (left overbank, channel, right overbank) n and its source,
+    calibrated against the reach's observations where asked; with the flags of
+    unknown land-cover classes and of a channel n outside Chow's table range."""
+    rid, t = str(rs.reach.reach_id), len(rs.chainage)
+    n, n_src, unknown = roughness.transect_n(
+        rid, rs.reach.attributes, t, params.roughness, cowan_terms=inputs.cowan,
+        classes=inputs.classes, class_offsets=rs.offsets, class_table=inputs.class_table,
+        banks=banks)
+    cal, n_obs, n_cal = _calibrate(p, rs, inputs.observations, slope, n, banks, ok, rid)
+    if params.calibrate and np.isfinite(n_cal):
+        n[:, 1] = n_cal
+        n_src = np.full(t, "calibrated", dtype=object)
+    unusual = (n[:, 1] < roughness.TABLE_RANGE[0]) | (n[:, 1] > roughness.TABLE_RANGE[1])
+    return n, n_src, unknown, unusual, cal, n_obs, n_cal
 
 
 def _assess(rs, picks, ok, t):

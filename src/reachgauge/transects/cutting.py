@@ -209,25 +209,7 @@ def _cut(ds, raster, reach, cfg, neighbours):
     bed_z = bed.bed_level(prof, bed.reach_noise(prof))
     tz = np.where(np.isfinite(z[:, n_half]) & np.isfinite(low), bed_z, np.nan)
 
-    # Transect status and flags, as arrays over transects.
-    valid = np.isfinite(z).sum(axis=1)
-    enough = (valid >= np.maximum(3, MIN_VALID_SHARE * inside.sum(axis=1))) & np.isfinite(tz)
-    finite = np.isfinite(z)
-    # ground must rise above the thalweg on both sides of it (a transect along a
-    # hillslope's contour falls away on one side: no section)
-    col = np.arange(u.size)[None, :]
-    left_max = np.max(np.where((col < low_col[:, None]) & finite, z, -np.inf), axis=1)
-    right_max = np.max(np.where((col > low_col[:, None]) & finite, z, -np.inf), axis=1)
-    depth = (left_max > tz) & (right_max > tz)
-    status = np.where(~(tw.found & enough), "no-data",
-                      np.where(depth, "ok", "no-depth")).astype(object)
-    flag_cols = [
-        ("off-raster", (got.outside & inside).any(axis=1)),
-        ("partial-nodata", (got.nodata & inside).any(axis=1)),
-        ("shortened", lim.shortened),
-        ("crosses-neighbour", lim.crossing),
-        ("snap-far", tw.far),
-    ]
+    status, flag_cols = _section_status(z, low_col, tz, tw, inside, got, lim)
 
     # Longitudinal profile and slopes.
     water = cfg.slope_source == "water"
@@ -261,6 +243,29 @@ def _cut(ds, raster, reach, cfg, neighbours):
         reach_flags=F.join(["flat-reach"] * fit.reach_floored + ["water-surface"] * water
                            + ["reshaped-profile"] * reshaped),
         sample_step=float(u[1] - u[0]), left_normal=st.left, xy_factor=f, snap=snap)
+
+
+def _section_status(z, low_col, tz, tw, inside, got, lim):
+    """Each transect's status (ok, no-data, no-depth) and its (flag, mask) columns,
+    as arrays over transects."""
+    finite = np.isfinite(z)
+    enough = ((finite.sum(axis=1) >= np.maximum(3, MIN_VALID_SHARE * inside.sum(axis=1)))
+              & np.isfinite(tz))
+    # ground must rise above the thalweg on both sides of it (a transect along a
+    # hillslope's contour falls away on one side: no section)
+    col = np.arange(z.shape[1])[None, :]
+    left_max = np.max(np.where((col < low_col[:, None]) & finite, z, -np.inf), axis=1)
+    right_max = np.max(np.where((col > low_col[:, None]) & finite, z, -np.inf), axis=1)
+    depth = (left_max > tz) & (right_max > tz)
+    status = np.where(~(tw.found & enough), "no-data",
+                      np.where(depth, "ok", "no-depth")).astype(object)
+    return status, [
+        ("off-raster", (got.outside & inside).any(axis=1)),
+        ("partial-nodata", (got.nodata & inside).any(axis=1)),
+        ("shortened", lim.shortened),
+        ("crosses-neighbour", lim.crossing),
+        ("snap-far", tw.far),
+    ]
 
 
 def _scale_array(geoms, k):
