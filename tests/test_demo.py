@@ -40,6 +40,13 @@ def test_demo_writes_result_and_report(demo):
     text = html.read_text()
     for rid in reaches.reach_id:
         assert f">{rid}<" in text
+    # each reach's drainage area, from the streams' field (make_basin.py writes it)
+    for a in reaches.drainage_area:
+        assert f"<dt>Drainage area</dt><dd>{a:g} km² (from the field)" in text
+    # the uncertainty bands the demo asks for (sample_data/basin/config.toml)
+    assert (reaches.discharge_p10 < reaches.discharge).all()
+    assert (reaches.discharge < reaches.discharge_p90).all()
+    assert "uncertainty p10–p90" in text
     assert not re.search(r"(src|href)\s*=\s*[\"']?(https?:)?//", text)
 
 

@@ -33,8 +33,8 @@ from reachgauge.errors import InputError
 from reachgauge.notices import CAUTION_LINE, CAUTIONS
 from reachgauge.results.report_regional import regional_section
 from reachgauge.results.report_page import _codes, _e, _figure_html, _page, _table  # noqa: F401
-from reachgauge.results.report_figures import (_f, _mc_band, _mc_share, _num, _profile_png,
-                                               _rating_png, _sections_png, _truthy)
+from reachgauge.results.report_figures import (_drainage, _f, _mc_band, _mc_share, _num,
+                                               _profile_png, _rating_png, _sections_png, _truthy)
 from reachgauge.results.report_maps import _map
 
 
@@ -338,6 +338,7 @@ def _reach_facts(r, info: _Info) -> str:
                    f"{_num(r.transects_ok, 0)} with figures, "
                    f"{_num(r.transects_flagged, 0)} flagged"),
         ("Slope", f"{_num(r.slope, sig=3)} {_codes(r.slope_flags, flagcodes.FLAGS)}"),
+        ("Drainage area", _drainage(r, u("drainage_area"))),
         ("Bankfull depth (median)", f"{_num(r.bankfull_depth, 2)} {u('bankfull_depth')} "
                                     f"(IQR {_num(r.depth_spread, 2)})"),
         ("Top width (median)", f"{_num(r.top_width)} {u('top_width')}"),

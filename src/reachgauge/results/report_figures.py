@@ -76,6 +76,19 @@ def _mc_share(d) -> str:
     return f" ({_num(100 * p, 0)} % of draws)" if np.isfinite(p) else ""
 
 
+def _drainage(r, unit: str) -> str:
+    """The reach's drainage area, where it came from and its flag, as report text."""
+    from reachgauge.flags import FLAGS
+    from reachgauge.results.report_page import _codes, _e
+
+    a = _f(getattr(r, "drainage_area", np.nan))
+    if not np.isfinite(a):
+        return "not known (give --drainage-area or --drainage-area-field)"
+    src = _e(getattr(r, "drainage_source", "") or "")
+    flags = _codes(getattr(r, "drainage_flags", "") or "", FLAGS)
+    return f"{_num(a)} {unit}" + (f" (from the {src})" if src else "") + (f" {flags}" if flags else "")
+
+
 def _new_figure(width: float, height: float, margins: dict | None = None):
     """A figure on an Agg canvas. With ``margins`` (subplot parameters in
     figure fractions) the layout is fixed, which is several times faster to
