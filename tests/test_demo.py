@@ -47,6 +47,13 @@ def test_demo_writes_result_and_report(demo):
     assert (reaches.discharge_p10 < reaches.discharge).all()
     assert (reaches.discharge < reaches.discharge_p90).all()
     assert "uncertainty p10–p90" in text
+    # the drawn bankfull stages bracket the pick where a stage is published (the
+    # long profile draws this band)
+    tr = pyogrio.read_dataframe(gpkg, layer="transects", read_geometry=False)
+    pub = tr.bankfull_stage.notna()
+    assert pub.any() and tr.bankfull_stage_p10[~pub].isna().all()
+    assert (tr.bankfull_stage_p10[pub] <= tr.bankfull_stage[pub] + 1e-9).all()
+    assert (tr.bankfull_stage[pub] <= tr.bankfull_stage_p90[pub] + 1e-9).all()
     assert not re.search(r"(src|href)\s*=\s*[\"']?(https?:)?//", text)
 
 

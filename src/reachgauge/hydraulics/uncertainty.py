@@ -312,7 +312,11 @@ def assess(u: UncertaintyParams, rid, p: K.Profiles, picks, banks, slope, n, n_s
                     point)
     dr = draw_inputs(spread, u.draws, rng)
     sm = propagate(p, banks, spread, dr, np.nonzero(ok)[0], depths, rng)
-    return summarise(sm, flows, published, use)
+    out = summarise(sm, flows, published, use)
+    # the drawn bankfull stages' band, for the long profile
+    lo, _mid, hi = _quantiles(np.where(np.asarray(published, bool)[None], dr.stage, np.nan))
+    out.transect.update(bankfull_stage_p10=lo, bankfull_stage_p90=hi)
+    return out
 
 
 def merge(out: Outcome, tr, reach_row: dict, curves, design) -> None:

@@ -128,6 +128,10 @@ def _profile_png(prof: pd.DataFrame, tr: pd.DataFrame, info, rid: str) -> str:
     if not np.allclose(used, prof["z_carved"].to_numpy(float), equal_nan=True):
         ax.plot(ch, used, color=CARVED, lw=1.0, ls=(0, (1, 1.5)), label="slope fitted to")
     conf = tr["confidence"].to_numpy(str)
+    if "bankfull_stage_p10" in tr and np.isfinite(tr["bankfull_stage_p10"].to_numpy(float)).any():
+        ax.vlines(tr["chainage"].to_numpy(float), tr["bankfull_stage_p10"].to_numpy(float),
+                  tr["bankfull_stage_p90"].to_numpy(float), color=WATER_EDGE, lw=1.0, alpha=0.6,
+                  label="bankfull stage, 10th-90th percentile")
     for low, style in ((False, dict(facecolors=WATER_EDGE)), (True, dict(facecolors="white"))):
         sel = (conf == "low") == low
         if sel.any():

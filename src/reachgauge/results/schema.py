@@ -86,6 +86,9 @@ TRANSECT_FIELDS = {
     "discharge_p50": ("discharge", "median of the bankfull channel discharge over the draws"),
     "discharge_p90": ("discharge", "90th percentile of the bankfull channel discharge over the "
                                    "draws"),
+    "bankfull_stage_p10": ("length", "10th percentile of the bankfull stage over the "
+                                     "--uncertainty draws (empty without them)"),
+    "bankfull_stage_p90": ("length", "90th percentile of the bankfull stage over the draws"),
     "n_observed": ("n", "channel n back-calculated from a measured flow matched to this transect"),
     "min_freeboard": ("length", "least freeboard to bankfull over the design flows (negative: out of bank)"),
     "flows_out": ("text", "design flows that leave the channel here"),
