@@ -108,7 +108,20 @@ class Checkpoint:
         lifecycle.clean_stale(f)
         return self.headers()
 
-    def close(self) -> None:
+    def close(self, stopped: bool = False) -> None:
+        """Release the folder. ``stopped``: the run was cut short, so a worker
+        stopped mid-write may have left a part under its temporary name (a killed
+        process cleans up nothing): once the workers are gone, remove those (the
+        folder is this run's alone, :meth:`open` saw to that; whole parts stay)."""
+        if stopped and self.folder.is_dir():
+            import multiprocessing
+
+            lifecycle.stop_workers()          # the run is ending: none of them may write on
+            for child in multiprocessing.active_children():
+                child.join(timeout=5)
+            for f in self.folder.glob(f"{lifecycle.PREFIX}*"):
+                if ".part" in f.name:
+                    lifecycle.remove_temp(f)
         if self._held:
             self._held = False
             lifecycle.release(self.folder)

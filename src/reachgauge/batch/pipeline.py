@@ -208,7 +208,7 @@ def run_to_file(cfg: RunConfig, out, *, overwrite: bool = False, csv_dir=None, r
             if kept == 0 or (isinstance(exc, InputError) and not isinstance(exc, OutputError)):
                 store.remove()        # nothing to resume, or inputs that must change first
             else:
-                store.close()
+                store.close(stopped=True)
                 total = len(net.reaches) if net is not None else "the"
                 lifecycle.STATE.resumable = (f"{kept} of {total} reaches are kept in "
                                              f"{store.folder}: add --resume to the same command "
