@@ -54,7 +54,8 @@ def run(out, *, config=None, overwrite: bool = False, csv=None, report=None,
     over the file. ``progress(output, done, total)`` is called as each reach
     finishes. Every finished reach is kept in ``<out>.checkpoint`` until the result
     is in place; ``resume=True`` continues an interrupted run from there (same
-    settings and inputs, or it is refused). Returns the run's :class:`~reachgauge.batch.summary.RunSummary`
+    settings and inputs, or it is refused). Returns the run's
+    :class:`~reachgauge.batch.summary.RunSummary`
     (``.lines()`` prints like the command line). Raises
     :class:`~reachgauge.errors.InputError` for bad input, before any work.
     """

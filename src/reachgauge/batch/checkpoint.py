@@ -96,8 +96,9 @@ class Checkpoint:
                 raise InputError(f"the checkpoint {str(f)!r} cannot be read ({exc})",
                                  "delete that folder and run again without --resume") from None
             if old != self.identity:
+                change = _describe_change(old, self.identity)
                 raise InputError(f"cannot resume into {str(self.out)!r}: the checkpoint was made "
-                                 f"with other inputs or settings ({_describe_change(old, self.identity)})",
+                                 f"with other inputs or settings ({change})",
                                  "run with the settings and inputs of the interrupted run, or "
                                  f"delete {str(f)!r} and run again without --resume")
         else:

@@ -110,8 +110,9 @@ def compute(cfg: RunConfig, net=None, shared=None, sink=None, done=None,
     timings = {"task": 0.0, "read": 0.0, "keep": 0.0}
     folder = None if sink.folder is None else str(sink.folder)
     keeper = Keeper(cfg.units, net.work_crs, net.source_crs, folder)
+    remote = dataclasses.replace(keeper, folder=None)   # Dask workers send their rows back
     for kept in dispatch.iterate(cfg, net, shared, reaches=todo, note=notes.append,
-                                 finish=keeper, finish_remote=Keeper(*dataclasses.astuple(keeper)[:3])):
+                                 finish=keeper, finish_remote=remote):
         t1 = time.perf_counter()
         if kept.layers is not None:
             sink.add(kept.header, kept.layers)
